@@ -1,0 +1,303 @@
+"""Video files through OpenCV's FFmpeg backend: sequential decoding, verified length."""
+
+from __future__ import annotations
+
+import contextlib
+import os
+import pathlib
+from collections import OrderedDict
+from collections.abc import Iterator
+from typing import Any
+
+import cv2
+import numpy as np
+
+from ..errors import ClipError
+from ._base import Frame, FrameSource, UnreadableFrame, container_fps_ok, logger
+
+__all__ = ["VideoSource", "VIDEO_SUFFIXES", "looks_like"]
+
+# FFmpeg writes its own complaints about damaged files straight to stderr; the
+# library reports problems through its logger instead. A user who wants FFmpeg's
+# messages sets OPENCV_FFMPEG_LOGLEVEL before fringecount opens the first video.
+os.environ.setdefault("OPENCV_FFMPEG_LOGLEVEL", "-8")
+
+#: Give up opening or reading a frame after this long (ms) instead of hanging.
+_TIMEOUT_MS = 10_000
+#: Ahead of the current position by at most this many frames, decode forward instead of seeking.
+_FORWARD_LIMIT = 64
+#: Frames kept by :meth:`VideoSource.get_frame`.
+_CACHE_SIZE = 8
+#: A container claiming more frames than this is not believed and the frames are counted.
+_MAX_PLAUSIBLE_FRAMES = 50_000_000
+
+
+def _is_riff_avi(head: bytes) -> bool:
+    return head[:4] == b"RIFF" and head[8:12] in (b"AVI ", b"AVIX")
+
+
+def _is_iso_media(head: bytes) -> bool:
+    return head[4:8] in (b"ftyp", b"moov", b"mdat", b"free", b"wide", b"skip", b"pnot", b"uuid")
+
+
+def _is_ebml(head: bytes) -> bool:
+    return head[:4] == b"\x1a\x45\xdf\xa3"
+
+
+def _is_mpeg_ps(head: bytes) -> bool:
+    return head[:4] in (b"\x00\x00\x01\xba", b"\x00\x00\x01\xb3")
+
+
+def _is_mpeg_ts(head: bytes) -> bool:
+    return len(head) > 188 and head[0] == 0x47 and head[188] == 0x47
+
+
+#: Extension -> (container name, test of the file's first bytes).
+VIDEO_SUFFIXES = {
+    ".avi": ("AVI", _is_riff_avi),
+    ".mp4": ("MP4", _is_iso_media),
+    ".m4v": ("MP4", _is_iso_media),
+    ".mov": ("QuickTime", _is_iso_media),
+    ".3gp": ("3GP", _is_iso_media),
+    ".mkv": ("Matroska", _is_ebml),
+    ".webm": ("WebM", _is_ebml),
+    ".mpg": ("MPEG program stream", _is_mpeg_ps),
+    ".mpeg": ("MPEG program stream", _is_mpeg_ps),
+    ".ts": ("MPEG transport stream", _is_mpeg_ts),
+    ".wmv": ("ASF", lambda h: h[:8] == b"\x30\x26\xb2\x75\x8e\x66\xcf\x11"),
+    ".flv": ("FLV", lambda h: h[:3] == b"FLV"),
+    ".ogv": ("Ogg", lambda h: h[:4] == b"OggS"),
+}
+
+
+def looks_like(path: pathlib.Path, suffix: str) -> bool:
+    """True if the file starts the way a ``suffix`` container does."""
+    with open(path, "rb") as fh:
+        head = fh.read(256)
+    return VIDEO_SUFFIXES[suffix][1](head)
+
+
+@contextlib.contextmanager
+def _quiet_opencv() -> Iterator[None]:
+    """Silence OpenCV's own warnings while it probes a file (our logger reports instead)."""
+    logging_api = getattr(getattr(cv2, "utils", None), "logging", None)
+    if logging_api is None:
+        yield
+        return
+    previous = logging_api.getLogLevel()
+    logging_api.setLogLevel(logging_api.LOG_LEVEL_ERROR)
+    try:
+        yield
+    finally:
+        logging_api.setLogLevel(previous)
+
+
+def _capture(path: pathlib.Path) -> cv2.VideoCapture:
+    params = [cv2.CAP_PROP_OPEN_TIMEOUT_MSEC, _TIMEOUT_MS, cv2.CAP_PROP_READ_TIMEOUT_MSEC, _TIMEOUT_MS]
+    with _quiet_opencv():
+        cap = cv2.VideoCapture(str(path), cv2.CAP_FFMPEG, params)
+    if not cap.isOpened():
+        cap.release()
+        raise ClipError(f"cannot open {path.name} as a video (damaged, incomplete or an unknown codec); "
+                        "check the file, or convert it to MP4 or AVI")
+    return cap
+
+
+def _fourcc(cap: cv2.VideoCapture) -> str:
+    code = int(cap.get(cv2.CAP_PROP_FOURCC)) & 0xFFFFFFFF
+    text = "".join(chr((code >> (8 * i)) & 0xFF) for i in range(4))
+    return text.strip("\x00 ") if text.isprintable() else f"0x{code:08x}"
+
+
+def _decodable(cap: cv2.VideoCapture, index: int) -> bool:
+    """True if frame ``index`` can be decoded (seeks the capture)."""
+    return bool(cap.set(cv2.CAP_PROP_POS_FRAMES, index)) and bool(cap.grab())
+
+
+def _count_forward(cap: cv2.VideoCapture, start: int) -> int:
+    """Number of frames, counting by decoding on from frame ``start`` (already positioned)."""
+    n = start
+    while cap.grab():
+        n += 1
+    return n
+
+
+class VideoSource(FrameSource):
+    """Frames of a video file decoded by OpenCV (FFmpeg backend).
+
+    The frame count from the container is checked at open time: the last frame
+    claimed must decode, otherwise the last decodable frame is found by
+    bisection, a warning is logged and ``metadata["truncated"]`` is set. A
+    container that claims no frames is counted by decoding it once.
+
+    Notes
+    -----
+    :meth:`get_frame` seeks (``CAP_PROP_POS_FRAMES``) when the frame lies behind or
+    far ahead of the last one read, else decodes forward; the last few frames are
+    cached. Seeking is exact for intra-only codecs (MJPG, FFV1) and usually for others.
+    OpenCV hands frames over as 8-bit BGR, so video frames are uint8. Times are
+    ``index / fps``: variable-frame-rate files are not timed per frame, but
+    iteration compares the container's timestamps with that rule and records
+    the largest difference in ``metadata["timestamp_deviation_s"]``.
+    """
+
+    def __init__(self, path: pathlib.Path, *, fps: float | None, channel: str, first_frame: Any,
+                 last_frame: Any, step: Any) -> None:
+        super().__init__(path)
+        self._cap: cv2.VideoCapture | None = None
+        self._position = 0
+        self._cache: OrderedDict[int, np.ndarray] = OrderedDict()
+        self._live_iter_caps: list[cv2.VideoCapture] = []
+        cap = _capture(path)
+        self._cap = cap
+        try:
+            ok, first = cap.read()
+            if not ok or first is None:
+                raise ClipError(f"{path.name} opens as a video but not even its first frame decodes; "
+                                "check the file (it may be damaged or empty)")
+            self._position = 1
+            container_fps = cap.get(cv2.CAP_PROP_FPS)
+            if fps is not None:
+                use_fps, fps_source = fps, "override"
+            elif container_fps_ok(container_fps):
+                use_fps, fps_source = float(container_fps), "container"
+            else:
+                raise ClipError(f"{path.name} has no frame rate (container says {container_fps:g}); "
+                                "pass --fps N")
+            reported = cap.get(cv2.CAP_PROP_FRAME_COUNT)
+            n_frames = self._verified_length(reported)
+            self.metadata.update(format=VIDEO_SUFFIXES.get(path.suffix.lower(), (path.suffix,))[0],
+                                 codec=_fourcc(cap), backend=cap.getBackendName(),
+                                 container_fps=float(container_fps), n_frames_reported=reported,
+                                 timestamp_deviation_s=None)
+            self._finish_open(n_frames_in_file=n_frames, fps=use_fps, fps_source=fps_source,
+                              first_frame=first_frame, last_frame=last_frame, step=step, channel=channel)
+        except BaseException:
+            self._release()
+            raise
+
+    def _verified_length(self, reported: float) -> int:
+        """Frames that really decode; logs and flags a container that promised more."""
+        cap = self._cap
+        claimed = int(reported) if np.isfinite(reported) and 0 < reported <= _MAX_PLAUSIBLE_FRAMES else 0
+        self._position = -1          # every branch below moves the capture
+        if claimed <= 0:
+            logger.info("%s does not state its frame count; counting the frames", self.path.name)
+            cap.set(cv2.CAP_PROP_POS_FRAMES, 0)
+            return _count_forward(cap, 0)
+        if _decodable(cap, claimed - 1):
+            if cap.grab():           # the container under-reports: count the rest
+                n = _count_forward(cap, claimed + 1)
+                logger.info("%s holds %d frames although its header says %d", self.path.name, n, claimed)
+                return n
+            return claimed
+        good, bad = 0, claimed - 1   # frame 0 decoded at open; bisect for the last good frame
+        while bad - good > 1:
+            mid = (good + bad) // 2
+            if _decodable(cap, mid):
+                good = mid
+            else:
+                bad = mid
+        n = good + 1
+        logger.warning("%s is truncated: its header promises %d frames but only %d decode; "
+                       "reading those", self.path.name, claimed, n)
+        self.metadata["truncated"] = True
+        return n
+
+    # -- random access -------------------------------------------------------------
+    def _read_raw(self, index: int) -> np.ndarray:
+        self._check_open()
+        cached = self._cache.get(index)
+        if cached is not None:
+            self._cache.move_to_end(index)
+            return cached
+        cap = self._cap
+        ahead = index - self._position
+        if self._position < 0 or not 0 <= ahead <= _FORWARD_LIMIT:
+            if not cap.set(cv2.CAP_PROP_POS_FRAMES, index):
+                raise UnreadableFrame(f"cannot seek to frame {index}")
+            self._position = index
+        else:
+            for _ in range(ahead):
+                if not cap.grab():
+                    failed, self._position = self._position, -1
+                    raise UnreadableFrame(f"frame {failed} does not decode")
+                self._position += 1
+        ok, image = cap.read()
+        if not ok or image is None:
+            self._position = -1
+            raise UnreadableFrame(f"frame {index} does not decode")
+        self._position = index + 1
+        image.flags.writeable = False
+        self._cache[index] = image
+        while len(self._cache) > _CACHE_SIZE:
+            self._cache.popitem(last=False)
+        return image
+
+    # -- sequential decoding ------------------------------------------------------
+    def __iter__(self) -> Iterator[Frame]:
+        """Decode the selected frames in order with one pass over the file (no per-frame seek)."""
+        self._check_open()
+        if len(self.indices) == 0:
+            return
+        cap = _capture(self.path)
+        self._live_iter_caps.append(cap)
+        try:
+            first = int(self.indices[0])
+            position = 0
+            if first > _FORWARD_LIMIT and cap.set(cv2.CAP_PROP_POS_FRAMES, first):
+                position = first
+            period = 1.0 / self.fps
+            deviation = 0.0
+            wanted = iter(zip(self.indices.tolist(), self.times_s.tolist()))
+            index, time_s = next(wanted)
+            while True:
+                while position < index:
+                    if not cap.grab():
+                        self._stopped_early(position)
+                        return
+                    position += 1
+                ok, raw = cap.read()
+                if not ok or raw is None:
+                    self._stopped_early(position)
+                    return
+                position += 1
+                stamp_s = cap.get(cv2.CAP_PROP_POS_MSEC) / 1000.0
+                if np.isfinite(stamp_s) and self.metadata["fps_source"] == "container":
+                    deviation = max(deviation, abs(stamp_s - time_s))
+                try:
+                    image = self._plane(raw, index)
+                except UnreadableFrame as exc:
+                    self._note_unreadable(index, str(exc))
+                else:
+                    yield Frame(index, time_s, image)
+                nxt = next(wanted, None)
+                if nxt is None:
+                    break
+                index, time_s = nxt
+            if self.metadata["fps_source"] == "container":
+                self.metadata["timestamp_deviation_s"] = deviation
+                if deviation > 0.5 * period:
+                    logger.warning("%s: container timestamps differ from frame number / fps by up to %.3g s "
+                                   "(variable frame rate?); times assume a constant rate", self.path.name,
+                                   deviation)
+        finally:
+            cap.release()
+            with contextlib.suppress(ValueError):
+                self._live_iter_caps.remove(cap)
+
+    def _stopped_early(self, position: int) -> None:
+        self.metadata["truncated"] = True
+        self.metadata["n_frames_decoded"] = position
+        logger.warning("%s: decoding stopped at frame %d of %d (file damaged or truncated); "
+                       "the frames after it are missing", self.path.name, position,
+                       self.metadata["n_frames_in_file"])
+
+    def _release(self) -> None:
+        if self._cap is not None:
+            self._cap.release()
+            self._cap = None
+        for cap in self._live_iter_caps:
+            cap.release()
+        self._live_iter_caps.clear()
+        self._cache.clear()
