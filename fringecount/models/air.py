@@ -22,6 +22,8 @@ term, and the IAPWS saturation-vapour-pressure form).
 
 from __future__ import annotations
 
+from dataclasses import dataclass
+
 import numpy as np
 
 from ..errors import InputError
@@ -40,6 +42,8 @@ __all__ = [
     "vacuum_to_air_wavelength",
     "air_to_vacuum_wavelength",
     "GAS_CONSTANT",
+    "AirConditions",
+    "air_conditions",
 ]
 
 #: Default conditions used when the user states none (reported in every result).
@@ -269,3 +273,48 @@ def air_to_vacuum_wavelength(wavelength_air_m: float, temperature_C: float = 20.
         lam = wavelength_air_m * air_index_ciddor(lam, temperature_C, pressure_Pa, humidity_percent, co2_ppm)
     return lam
 
+
+
+@dataclass(frozen=True)
+class AirConditions:
+    """Ambient air along the beam, in canonical units, each with its 1-sigma.
+
+    ``assumed`` lists the conditions that were not stated and took the defaults of
+    :data:`STANDARD_CONDITIONS` (reported in every result's notes).
+    """
+
+    temperature_K: Uncertain = Uncertain(293.15)
+    pressure_Pa: Uncertain = Uncertain(101325.0)
+    humidity_percent: Uncertain = Uncertain(50.0)
+    co2_ppm: Uncertain = Uncertain(450.0)
+    assumed: tuple[str, ...] = ()
+
+    def as_inputs(self) -> dict[str, Uncertain]:
+        """The four conditions as keyword inputs for :func:`propagate`."""
+        return {"temperature_K": self.temperature_K, "pressure_Pa": self.pressure_Pa,
+                "humidity_percent": self.humidity_percent, "co2_ppm": self.co2_ppm}
+
+    def note(self) -> str:
+        if not self.assumed:
+            return ""
+        return ("air conditions not stated, assumed: " + ", ".join(self.assumed)
+                + "; give them with +/- uncertainties for a complete budget")
+
+
+def air_conditions(temperature_K: Uncertain | None = None, pressure_Pa: Uncertain | None = None,
+                   humidity_percent: Uncertain | None = None, co2_ppm: Uncertain | None = None) -> AirConditions:
+    """Build :class:`AirConditions`, filling what is missing from :data:`STANDARD_CONDITIONS`."""
+    assumed = []
+    if temperature_K is None:
+        temperature_K = Uncertain(STANDARD_CONDITIONS["temperature_C"] + 273.15)
+        assumed.append("20 degC")
+    if pressure_Pa is None:
+        pressure_Pa = Uncertain(STANDARD_CONDITIONS["pressure_Pa"])
+        assumed.append("101.325 kPa")
+    if humidity_percent is None:
+        humidity_percent = Uncertain(STANDARD_CONDITIONS["humidity_percent"])
+        assumed.append("50 %RH")
+    if co2_ppm is None:
+        co2_ppm = Uncertain(STANDARD_CONDITIONS["co2_ppm"])
+        assumed.append("450 umol/mol CO2")
+    return AirConditions(temperature_K, pressure_Pa, humidity_percent, co2_ppm, tuple(assumed))
