@@ -1,0 +1,1 @@
+"""Implementation of :mod:`fringecount.synthetic` (public names live there)."""
