@@ -1,0 +1,198 @@
+"""Batch re-analysis: planning (folders, manifests), resumability and failure isolation.
+
+The orchestration tests inject a small clip-analysis function (``analyse=``) so
+that they can make a clip fail, crash its worker or hang on purpose; the
+end-to-end tests at the bottom run the real ``count`` on synthetic clips.
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import signal
+import time
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import pytest
+import tifffile
+
+from fringecount import batch as B
+from fringecount.errors import ClipError, InputError, SettingsError
+from fringecount.settings import CountSettings
+
+
+# --------------------------------------------------------------------------- planning
+
+def _touch(path: Path, data: bytes = b"x") -> Path:
+    path.parent.mkdir(parents=True, exist_ok=True)
+    path.write_bytes(data)
+    return path
+
+
+def test_find_clips_picks_videos_stacks_and_image_folders(tmp_path):
+    root = tmp_path / "archive"
+    _touch(root / "a.avi")
+    _touch(root / "2026" / "b.MP4")
+    _touch(root / "2026" / "deep" / "c.mkv")
+    _touch(root / "arr.npy")
+    (root / "stacks").mkdir()
+    for name in ("s1.tif", "s2.tif"):  # multi-page TIFFs: one clip each
+        tifffile.imwrite(root / "stacks" / name, np.zeros((3, 8, 8), np.uint8), photometric="minisblack")
+    for k in (1, 2, 10):  # a folder of numbered PNGs is one clip
+        _touch(root / "seq_png" / f"img{k}.png")
+    (root / "seq_tif").mkdir()
+    for k in (1, 2, 10):  # numbered single-page TIFFs: one clip too
+        tifffile.imwrite(root / "seq_tif" / f"f{k}.tif", np.zeros((4, 4), np.uint8))
+    _touch(root / "notes.txt")
+    _touch(root / "single" / "only.png")  # one image is not an image folder
+    _touch(root / ".hidden" / "x.avi")
+    _touch(root / "results" / "old.avi")  # the output folder is excluded
+    items = B.find_clips(root, exclude=[root / "results"])
+    assert [it.name for it in items] == [
+        "2026/b.MP4", "2026/deep/c.mkv", "a.avi", "arr.npy", "seq_png", "seq_tif",
+        "stacks/s1.tif", "stacks/s2.tif"]
+    assert items[0].clip == root / "2026" / "b.MP4"
+    assert all(it.settings == CountSettings() for it in items)
+
+
+def test_find_clips_empty_folder_is_an_input_error(tmp_path):
+    _touch(tmp_path / "readme.txt")
+    with pytest.raises(InputError, match="no clips found"):
+        B.find_clips(tmp_path)
+
+
+def test_extensions_agree_with_the_frame_readers():
+    # Every extension the batch searches for must be one the readers open.
+    from fringecount import frames
+
+    assert set(B.VIDEO_EXTENSIONS) <= set(frames.VIDEO_SUFFIXES)
+    assert set(B.IMAGE_EXTENSIONS) | {".tif", ".tiff"} == set(frames.IMAGE_SUFFIXES)
+
+
+@pytest.mark.parametrize("names", [
+    ("a/b.avi", "a__b.avi", "a b.avi", "a_b.avi", "a/b.AVI"),
+    ("x.avi", "./x.avi", ".x.avi", "x.avi "),
+])
+def test_result_folder_names_are_unique_stable_and_safe(names):
+    folders = [B.result_folder_name(n) for n in names]
+    assert len(set(folders)) == len(names)
+    assert folders == [B.result_folder_name(n) for n in names]  # stable
+    for f in folders:
+        assert not f.startswith(".") and "/" not in f and " " not in f
+        assert B._STAGING_RE.match(f".{f}.abc_1234.part")
+
+
+def _write(path: Path, text: str) -> Path:
+    path.parent.mkdir(parents=True, exist_ok=True)
+    path.write_text(text, encoding="utf-8")
+    return path
+
+
+def test_csv_manifest_per_clip_settings(tmp_path):
+    manifest = _write(tmp_path / "m" / "runs.csv", (
+        "# clips of the March campaign\n"
+        "path,fps,channel,frames,center,inner,outer,crop,saturation,fixed_center,wavelength_log,log_offset_s,"
+        "model,params.thickness,params.angle\n"
+        "a.avi,60,green,100:900:2,\"320.5,240\",5,200,\"0,0,640,480\",4000,yes,logs/a.csv,-1.5,"
+        "plate-rotation,1.000+/-0.002mm,10deg\n"
+        "sub/b.avi,,,,,,,,,,,,,,\n"))
+    base = CountSettings(fps=30.0, channel="red")
+    first, second = B.read_manifest(manifest, settings=base)
+    assert first.name == "a.avi" and first.clip == tmp_path / "m" / "a.avi"
+    s = first.settings
+    assert (s.fps, s.channel, s.first_frame, s.last_frame, s.step) == (60.0, "green", 100, 900, 2)
+    assert s.center == (320.5, 240.0) and (s.inner_radius_px, s.outer_radius_px) == (5.0, 200.0)
+    assert s.crop == (0, 0, 640, 480) and s.saturation_level == 4000.0 and s.track_center is False
+    assert s.wavelength_log == str(tmp_path / "m" / "logs" / "a.csv") and s.log_offset_s == -1.5
+    assert first.model == "plate-rotation"
+    assert dict(first.model_params) == {"thickness": "1.000+/-0.002mm", "angle": "10deg"}
+    # Empty cells take the command-line settings.
+    assert second.settings == base and second.model is None and second.clip == tmp_path / "m" / "sub" / "b.avi"
+
+
+def test_toml_manifest_defaults_and_params(tmp_path):
+    manifest = _write(tmp_path / "runs.toml", """
+[defaults]
+fps = 25
+channel = "gray"
+model = "plate-rotation"
+params.wavelength = "632.8nm"
+
+[[clip]]
+path = "a.avi"
+center = [10, 12.5]
+frames = "5:"
+params.thickness = "1mm"
+
+[[clip]]
+path = "/data/b.avi"
+fps = 50.0
+fixed_center = true
+params = { thickness = "2mm", wavelength = "543.5nm" }
+""")
+    a, b = B.read_manifest(manifest)
+    assert a.settings.fps == 25.0 and a.settings.channel == "gray" and a.settings.center == (10.0, 12.5)
+    assert (a.settings.first_frame, a.settings.last_frame) == (5, None)
+    assert dict(a.model_params) == {"wavelength": "632.8nm", "thickness": "1mm"}
+    assert b.clip == Path("/data/b.avi") and b.name == "/data/b.avi"
+    assert b.settings.fps == 50.0 and b.settings.track_center is False
+    assert dict(b.model_params) == {"thickness": "2mm", "wavelength": "543.5nm"}
+
+
+@pytest.mark.parametrize("suffix,text,key", [
+    (".csv", "path,fsp\na.avi,30\n", "fsp"),
+    (".csv", "path,params\na.avi,1\n", "params"),
+    (".toml", "[[clip]]\npath = 'a.avi'\nroi = 3\n", "roi"),
+    (".toml", "[defaults]\nwavelenght_log = 'x.csv'\n[[clip]]\npath = 'a.avi'\n", "wavelenght_log"),
+    (".toml", "[[clips]]\npath = 'a.avi'\n", "clips"),
+])
+def test_unknown_manifest_key_is_named(tmp_path, suffix, text, key):
+    manifest = _write(tmp_path / f"m{suffix}", text)
+    with pytest.raises(SettingsError) as err:
+        B.read_manifest(manifest)
+    assert repr(key) in str(err.value) and "\n" not in str(err.value)
+
+
+@pytest.mark.parametrize("suffix,text,fragment", [
+    (".csv", "path,fps\na.avi,-30\n", "line 2"),
+    (".csv", "path,fps\na.avi,thirty\n", "fps must be a number"),
+    (".csv", "path,center\na.avi,\"1,2,3\"\n", "center must be 2 numbers"),
+    (".csv", "path,frames\na.avi,9:3\n", "line 2"),
+    (".csv", "path,frames\na.avi,a:b\n", "FIRST[:LAST[:STEP]]"),
+    (".csv", "path\na.avi\na.avi\n", "listed twice"),
+    (".csv", "fps\n30\n", "no 'path' column"),
+    (".csv", "path,params.angle\na.avi,10deg\n", "without a model"),
+    (".csv", "# only a comment\n", "empty"),
+    (".toml", "[[clip]]\npath = 'a.avi'\nfps = true\n", "fps must be a number"),
+    (".toml", "[[clip]]\npath = 'a.avi'\nfixed_center = 'maybe'\n", "true or false"),
+    (".toml", "[[clip]]\nfps = 30\n", "no clip path"),
+    (".toml", "[defaults]\nfps = 30\n", "lists no clips"),
+    (".toml", "[[clip]\npath = 'a.avi'\n", "not valid TOML"),
+    (".txt", "path\na.avi\n", "manifests end in .csv or .toml"),
+])
+def test_bad_manifest_values_are_one_line_settings_errors(tmp_path, suffix, text, fragment):
+    manifest = _write(tmp_path / f"m{suffix}", text)
+    with pytest.raises(InputError) as err:
+        B.read_manifest(manifest)
+    assert fragment in str(err.value) and "\n" not in str(err.value)
+
+
+def test_manifest_values_are_data_not_code(tmp_path):
+    # A value that would run code if evaluated is only ever a bad number.
+    marker = tmp_path / "executed"
+    manifest = _write(tmp_path / "m.toml",
+                      f"[[clip]]\npath = 'a.avi'\nfps = \"__import__('pathlib').Path('{marker}').touch() or 30\"\n")
+    with pytest.raises(SettingsError, match="fps must be a number"):
+        B.read_manifest(manifest)
+    assert not marker.exists()
+
+
+def test_plan_batch_dispatches_and_reports_missing_source(tmp_path):
+    _touch(tmp_path / "clips" / "a.avi")
+    assert [it.name for it in B.plan_batch(tmp_path / "clips")] == ["a.avi"]
+    _write(tmp_path / "m.csv", "path\nclips/a.avi\n")
+    assert [it.clip for it in B.plan_batch(tmp_path / "m.csv")] == [tmp_path / "clips" / "a.avi"]
+    with pytest.raises(InputError, match="does not exist"):
+        B.plan_batch(tmp_path / "nothing")
