@@ -95,7 +95,8 @@ def open_frames(path: str | os.PathLike, *, fps: float | None = None, channel: s
     Nothing reads the whole recording into memory. Times are
     ``times_s = indices / fps`` seconds from the first frame of the file.
     A video whose header promises more frames than decode is read up to the
-    last good frame, with a logged warning and ``metadata["truncated"] = True``.
+    last good frame (which is dropped as possibly incomplete), with a logged
+    warning and ``metadata["truncated"] = True``.
     Log messages go to the ``fringecount.frames`` logger.
     """
     if not isinstance(path, (str, os.PathLike)):

@@ -202,8 +202,9 @@ def choose_channel(samples: list[np.ndarray], order: str, top: float | None) -> 
     between consecutive sampled frames (moving fringes change a lot, a steady
     background not at all); for a single sample, or if nothing changes, the
     spatial standard deviation of the frames themselves. Channels more than
-    half saturated are skipped. Luma wins when it carries nearly as much signal
-    as the best channel (grey content), see ``GRAY_PREFERENCE``.
+    half saturated are skipped (and then luma, which mixes them in, too). Luma
+    wins when it carries nearly as much signal as the best channel (grey
+    content), see ``GRAY_PREFERENCE``.
     """
     small = [_subsample(s).astype(np.float32) for s in samples]
     names = ("red", "green", "blue")
@@ -223,7 +224,7 @@ def choose_channel(samples: list[np.ndarray], order: str, top: float | None) -> 
         unsaturated = [n for n in names if np.mean([np.mean(x >= top) for x in planes[n]]) <= SATURATED_FRACTION]
         usable = unsaturated or usable
     best = max(usable, key=lambda n: scores[n])
-    if scores["gray"] >= GRAY_PREFERENCE * scores[best]:
+    if len(usable) == len(names) and scores["gray"] >= GRAY_PREFERENCE * scores[best]:
         best = "gray"
     return best, scores
 

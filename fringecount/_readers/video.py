@@ -127,7 +127,9 @@ class VideoSource(FrameSource):
 
     The frame count from the container is checked at open time: the last frame
     claimed must decode, otherwise the last decodable frame is found by
-    bisection, a warning is logged and ``metadata["truncated"]`` is set. A
+    bisection, a warning is logged and ``metadata["truncated"]`` is set; that
+    last frame is left out too, as it may be incomplete (a cut MJPG frame in AVI
+    decodes with garbage in its lower part). A
     container that claims no frames is counted by decoding it once.
 
     Notes
@@ -198,9 +200,11 @@ class VideoSource(FrameSource):
                 good = mid
             else:
                 bad = mid
-        n = good + 1
-        logger.warning("%s is truncated: its header promises %d frames but only %d decode; "
-                       "reading those", self.path.name, claimed, n)
+        # The last frame that decodes may be cut short: MJPG in AVI, for one, decodes a
+        # frame whose tail is missing as grey garbage. Drop it unless it is frame 0.
+        n = max(good, 1)
+        logger.warning("%s is truncated: its header promises %d frames but only %d decode; reading %d "
+                       "(the last one may be incomplete)", self.path.name, claimed, good + 1, n)
         self.metadata["truncated"] = True
         return n
 
