@@ -99,7 +99,10 @@ class ReportFigure:
     panels : tuple of str
         Titles of the panels drawn, in page order.
     thumbnail_frames : tuple of int
-        Clip frame index of every gap thumbnail shown (empty without a clip).
+        Clip frame number of every thumbnail shown, in strip order (empty
+        without a clip). With up to three gaps each gets three: the frame
+        before it, its middle frame and the frame after it; with more, the
+        middle frames of the longest eight.
     gap_labels : tuple of str
         Label of each gap as printed on the page (``G1``, ``G2``...), in table order.
     notes : tuple of str
@@ -314,15 +317,44 @@ def _thumbnail_choice(gaps, limit: int) -> list[int]:
     return sorted(int(i) for i in order)
 
 
-def _downsample(image: np.ndarray, target_px: int) -> np.ndarray:
-    """Block-average ``image`` so its long side is at most about ``target_px``."""
+def _downsample(image: np.ndarray, target_px: int) -> tuple[np.ndarray, int]:
+    """Block-average ``image`` so its long side is at most about ``target_px``; also the factor."""
     factor = max(1, int(math.ceil(max(image.shape[:2]) / target_px)))
     if factor == 1:
-        return image.astype(float)
+        return image.astype(float), 1
     rows = image.shape[0] // factor * factor
     cols = image.shape[1] // factor * factor
     im = image[:rows, :cols].astype(float)
-    return im.reshape(rows // factor, factor, cols // factor, factor).mean(axis=(1, 3))
+    return im.reshape(rows // factor, factor, cols // factor, factor).mean(axis=(1, 3)), factor
+
+
+def _first_float(table, key, column: str) -> float:
+    """``table.loc[key, column]`` as one float (the first if the key repeats), NaN if absent."""
+    if column not in table.columns:
+        return float("nan")
+    return float(np.asarray(table.loc[key, column], dtype=float).ravel()[0])
+
+
+def _thumbnail_slots(gaps, chosen: Sequence[int], frames) -> list[tuple[int, str, int]]:
+    """(gap row, role, frame) for the strip: before/middle/after for up to three gaps, else middles."""
+    first = _column(gaps, "first_frame")
+    last = _column(gaps, "last_frame")
+    numbers = _column(frames, "frame") if "frame" in frames.columns else np.arange(len(frames), dtype=float)
+    lo = np.nanmin(numbers) if numbers.size else 0
+    hi = np.nanmax(numbers) if numbers.size else 0
+    slots: list[tuple[int, str, int]] = []
+    for row in chosen:
+        a, b = int(first[row]), int(last[row])
+        middle = (a + b) // 2
+        if len(chosen) <= 3:
+            if a - 1 >= lo:
+                slots.append((row, "before", a - 1))
+            slots.append((row, "middle", middle))
+            if b + 1 <= hi:
+                slots.append((row, "after", b + 1))
+        else:
+            slots.append((row, "middle", middle))
+    return slots
 
 
 def _value_range(image: np.ndarray, dtype) -> tuple[float, float]:
@@ -336,18 +368,25 @@ def _value_range(image: np.ndarray, dtype) -> tuple[float, float]:
     return lo, hi if hi > lo else lo + 1.0
 
 
-def _read_thumbnails(clip, frame_numbers: Sequence[int], settings) -> tuple[list, list[str]]:
-    """Frames ``frame_numbers`` of ``clip`` (None where unreadable) and notes on failures."""
+def _setting(settings, name: str, default=None):
+    """A setting from a CountSettings, a plain dict, or None."""
+    if isinstance(settings, dict):
+        return settings.get(name, default)
+    return getattr(settings, name, default)
+
+
+def _read_thumbnails(clip, frame_numbers: Sequence[int], settings, fps) -> tuple[list, list[str]]:
+    """Frames ``frame_numbers`` (original numbering) of ``clip``, None where unreadable, and notes."""
     from .frames import open_frames  # imported late: reading frames is optional here
 
     notes: list[str] = []
     kwargs: dict[str, Any] = {}
-    channel = getattr(settings, "channel", None)
+    channel = _setting(settings, "channel")
     if channel:
         kwargs["channel"] = channel
-    fps = getattr(settings, "fps", None)
-    if fps:
-        kwargs["fps"] = fps
+    fps = _setting(settings, "fps") or fps
+    if isinstance(fps, (int, float)) and math.isfinite(fps) and fps > 0:
+        kwargs["fps"] = float(fps)
     images: list = []
     try:
         source = open_frames(clip, **kwargs)
@@ -387,8 +426,8 @@ def render_report(result, *, clip: str | os.PathLike | None = None) -> ReportFig
         ``fringes_across``, ``fringes_across_sigma``, ``ambiguous``) and
         ``summary`` (dict).
     clip : path-like, optional
-        The recording the result came from; one frame from the middle of each
-        gap is shown (the longest eight gaps). Without it the strip says so.
+        The recording the result came from; frames from the gaps are shown (see
+        :attr:`ReportFigure.thumbnail_frames`). Without it the strip says so.
 
     Returns
     -------
@@ -407,10 +446,11 @@ def render_report(result, *, clip: str | os.PathLike | None = None) -> ReportFig
     gap is still visible. Centre drift is plotted relative to the median centre
     of the trusted frames, in pixels (x = column, y = row).
     """
+    from matplotlib import patheffects
     from matplotlib.backends.backend_agg import FigureCanvasAgg
     from matplotlib.figure import Figure
-    from matplotlib.patches import Patch
     from matplotlib.lines import Line2D
+    from matplotlib.patches import Patch
 
     frames = result.frames
     missing = [c for c in ("time_s", "fringes") if c not in frames.columns]
@@ -430,7 +470,7 @@ def render_report(result, *, clip: str | os.PathLike | None = None) -> ReportFig
 
     fig = Figure(figsize=_PAGE_IN, dpi=_DPI, layout=None)
     FigureCanvasAgg(fig)
-    grid = fig.add_gridspec(6, 1, height_ratios=[1.25, 3.0, 1.1, 1.1, 1.1, 1.5],
+    grid = fig.add_gridspec(6, 1, height_ratios=[1.1, 3.0, 1.1, 1.1, 1.1, 1.65],
                             left=0.09, right=0.97, top=0.945, bottom=0.03, hspace=0.5)
     clip_name = summary.get("clip") or (str(clip) if clip else "")
     title = "fringecount report" + (f": {Path(str(clip_name)).name}" if clip_name else "")
@@ -544,7 +584,6 @@ def render_report(result, *, clip: str | os.PathLike | None = None) -> ReportFig
     # ---- thumbnails
     chosen = _thumbnail_choice(gaps, _MAX_THUMBNAILS)
     shown: list[int] = []
-    thumb_grid = grid[5].subgridspec(1, max(len(chosen), 1), wspace=0.08)
     head = fig.add_subplot(grid[5])
     head.set_axis_off()
     head.set_title(PANEL_THUMBNAILS, loc="left", fontsize=10, fontweight="bold", pad=4)
@@ -558,40 +597,45 @@ def render_report(result, *, clip: str | os.PathLike | None = None) -> ReportFig
                   ha="center", va="center", fontsize=9, transform=head.transAxes)
         notes.append(f"no thumbnails: {why}")
     else:
-        first = _column(gaps, "first_frame")
-        last = _column(gaps, "last_frame")
-        wanted = [int((first[i] + last[i]) // 2) for i in chosen]
-        images, read_notes = _read_thumbnails(clip, wanted, getattr(result, "settings", None))
+        slots = _thumbnail_slots(gaps, chosen, frames)
+        images, read_notes = _read_thumbnails(clip, [k for _, _, k in slots],
+                                              getattr(result, "settings", None), summary.get("fps"))
         notes.extend(read_notes)
         by_frame = frames.set_index("frame") if "frame" in frames.columns else None
-        for slot, (row, k, image) in enumerate(zip(chosen, wanted, images)):
-            ax = fig.add_subplot(thumb_grid[0, slot])
+        strip = grid[5].subgridspec(2, len(slots), height_ratios=[0.4, 1.0], wspace=0.12, hspace=0.0)
+        outline = [patheffects.withStroke(linewidth=2.6, foreground="black")]
+        for slot, ((row, role, k), image) in enumerate(zip(slots, images)):
+            ax = fig.add_subplot(strip[1, slot])
             ax.set_xticks([])
             ax.set_yticks([])
             colour, _ = styles[reasons[row]]
+            inside = role == "middle"
             for spine in ax.spines.values():
-                spine.set_edgecolor(colour)
-                spine.set_linewidth(2.5)
-            ax.set_title(f"{labels[row]} · frame {k}\n{reasons[row]}", fontsize=7, pad=2)
+                spine.set_edgecolor(colour if inside else "#888888")
+                spine.set_linewidth(2.5 if inside else 0.8)
+            ax.set_title(f"{labels[row]} {role}\nframe {k}", fontsize=7, pad=2)
             if image is None:
                 ax.text(0.5, 0.5, "unreadable", ha="center", va="center", fontsize=7,
                         transform=ax.transAxes)
                 continue
             grey = image if image.ndim == 2 else image.mean(axis=2)
             lo, hi = _value_range(grey, image.dtype)
-            small = _downsample(grey, _THUMB_PX)
-            scale = grey.shape[0] / small.shape[0]
+            small, factor = _downsample(grey, _THUMB_PX)
             ax.imshow(small, cmap="gray", vmin=lo, vmax=hi, interpolation="nearest")
             if by_frame is not None and k in by_frame.index:
-                x0 = float(np.asarray(by_frame.loc[k, "center_x"]).ravel()[0]) if "center_x" in by_frame else np.nan
-                y0 = float(np.asarray(by_frame.loc[k, "center_y"]).ravel()[0]) if "center_y" in by_frame else np.nan
+                x0 = _first_float(by_frame, k, "center_x")
+                y0 = _first_float(by_frame, k, "center_y")
                 if math.isfinite(x0) and math.isfinite(y0):
-                    ax.plot([(x0 + 0.5) / scale - 0.5], [(y0 + 0.5) / scale - 0.5], marker="+",
-                            color=OKABE_ITO["orange"], markersize=8, markeredgewidth=1.2)
+                    ax.plot([(x0 + 0.5) / factor - 0.5], [(y0 + 0.5) / factor - 0.5], marker="+",
+                            color=OKABE_ITO["yellow"], markersize=7, markeredgewidth=1.2,
+                            path_effects=outline)
             shown.append(k)
         if len(gaps) > len(chosen):
             notes.append(f"thumbnails of the {len(chosen)} longest of {len(gaps)} gaps")
             head.text(1.0, 1.02, f"the {len(chosen)} longest of {len(gaps)} gaps", ha="right",
+                      va="bottom", fontsize=7, transform=head.transAxes)
+        else:
+            head.text(1.0, 1.02, "coloured border: inside the gap; + : centre found", ha="right",
                       va="bottom", fontsize=7, transform=head.transAxes)
     for note in notes:
         logger.info("report: %s", note)
