@@ -54,12 +54,16 @@ Examples
 
 from __future__ import annotations
 
+import argparse
+import sys
+
 from ._synth._glass import SELLMEIER, plate_index
 from ._synth._render import (TRUTH_COLUMNS, Camera, Scene, render_clip, render_frames,
                              render_frames_with_truth, ring_center_offset_px)
 from ._synth._sweeps import (DiodeScan, GasFill, MirrorSweep, ModeHop, OpticalState, PlateTilt,
                              ThermalExpansion, on_axis_order, opd_m, piezo_hysteresis_drive,
                              sinusoidal_drive)
+from ._synth._samples import SAMPLE_NAMES, ExponentialFill, make_sample_clips
 from ._synth._writers import VIDEO_CODECS, write_image_folder, write_tiff_stack, write_video
 
 __all__ = [
@@ -68,4 +72,30 @@ __all__ = [
     "sinusoidal_drive", "piezo_hysteresis_drive", "opd_m", "on_axis_order", "ring_center_offset_px",
     "plate_index", "SELLMEIER",
     "write_video", "write_image_folder", "write_tiff_stack", "VIDEO_CODECS",
+    "make_sample_clips", "SAMPLE_NAMES", "ExponentialFill", "main",
 ]
+
+
+def main(argv=None) -> int:
+    """``python -m fringecount.synthetic OUT_DIR``: (re)make the sample clips in OUT_DIR."""
+    from .errors import FringecountError
+
+    parser = argparse.ArgumentParser(
+        prog="python -m fringecount.synthetic",
+        description="Render the bundled sample clips (video, truth table, scenario JSON).")
+    parser.add_argument("out_dir", help="folder to write the clips into, e.g. sample_clips/")
+    parser.add_argument("--only", action="append", choices=SAMPLE_NAMES,
+                        help="make only this clip (repeatable)")
+    args = parser.parse_args(argv)
+    try:
+        paths = make_sample_clips(args.out_dir, names=args.only)
+    except FringecountError as err:
+        print(f"error: {err}", file=sys.stderr)
+        return err.exit_code
+    for p in paths:
+        print(p, file=sys.stderr)
+    return 0
+
+
+if __name__ == "__main__":
+    raise SystemExit(main())

@@ -61,6 +61,14 @@ def _temp_sibling(path: Path, suffix: str) -> Path:
     return Path(tmp)
 
 
+def _publish(tmp: Path, path: Path) -> None:
+    """Give ``tmp`` the usual permissions (0666 minus umask) and rename it onto ``path``."""
+    umask = os.umask(0)
+    os.umask(umask)
+    os.chmod(tmp, 0o666 & ~umask)
+    os.replace(tmp, path)
+
+
 def write_video(path, frames_iterable: Iterable[np.ndarray], fps: float, *, codec: str = "MJPG") -> Path:
     """Write 8-bit frames to a video file through ``cv2.VideoWriter``.
 
@@ -112,7 +120,7 @@ def write_video(path, frames_iterable: Iterable[np.ndarray], fps: float, *, code
         for frame in frames:
             writer.write(_bgr(_check_frame(frame, shape, (np.uint8,))))
         writer.release()
-        os.replace(tmp, path)
+        _publish(tmp, path)
     except BaseException:
         writer.release()
         tmp.unlink(missing_ok=True)
@@ -146,6 +154,9 @@ def write_image_folder(path, frames_iterable: Iterable[np.ndarray], *, ext: str 
             out = frame if frame.ndim == 2 else frame[:, :, ::-1]
             if not cv2.imwrite(str(stage / f"frame_{k:05d}{ext}"), out):
                 raise InputError(f"OpenCV could not write {ext} images to {stage}; check disk space")
+        umask = os.umask(0)
+        os.umask(umask)
+        os.chmod(stage, 0o777 & ~umask)
         if path.exists():
             path.rmdir()
         os.replace(stage, path)
@@ -173,7 +184,7 @@ def write_tiff_stack(path, frames_iterable: Iterable[np.ndarray]) -> Path:
                     raise InputError("frames mix 8- and 16-bit data; pass frames of one dtype")
                 tif.write(frame, photometric="rgb" if frame.ndim == 3 else "minisblack",
                           contiguous=True)
-        os.replace(tmp, path)
+        _publish(tmp, path)
     except BaseException:
         tmp.unlink(missing_ok=True)
         raise
