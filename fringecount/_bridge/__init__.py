@@ -1,0 +1,1 @@
+"""Implementation of :mod:`fringecount.bridge` (private; import from ``fringecount.bridge``)."""
