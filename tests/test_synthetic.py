@@ -7,14 +7,17 @@ Sources are named beside each check; "REFERENCES" is /work/shared/REFERENCES.md
 from __future__ import annotations
 
 import inspect
+import json
 import math
+from pathlib import Path
 
 import numpy as np
+import pandas as pd
 import pytest
 
 from fringecount.errors import InputError
 from fringecount.synthetic import (Camera, DiodeScan, GasFill, MirrorSweep, ModeHop, PlateTilt, Scene,
-                                   ThermalExpansion, on_axis_order, plate_index, render_clip,
+                                   ThermalExpansion, plate_index, render_clip,
                                    render_frames, ring_center_offset_px, write_image_folder,
                                    write_tiff_stack, write_video)
 
@@ -359,3 +362,73 @@ def test_bad_input_raises_input_error(tmp_path):
         write_video(tmp_path / "x.avi", [np.zeros((8, 8), np.uint16)], 10.0)
     with pytest.raises(InputError):
         write_video(tmp_path / "x.mp4", [np.zeros((8, 8), np.uint8)], 10.0, codec="MJPG")
+
+
+# ---------------------------------------------------------------- renderer agrees with its truth
+@pytest.mark.parametrize("sweep", [
+    MirrorSweep(d0_m=0.3e-3, velocity_m_s=0.37e-6),
+    DiodeScan(start_nm=658.0, rate_nm_s=0.1, plate_thickness_m=5e-3, material="N-BK7", gap_m=1.9e-3),
+], ids=["mirror", "diode+plate"])
+def test_centre_pixel_follows_truth_order(sweep):
+    # At the ring centre the model gives I = I0 (1 + V cos(2 pi m0)) (module docstring); the centre
+    # pixel of a quiet render must follow the truth table's order, frame by frame.
+    scene = Scene(visibility=0.9, center_xy=(31.0, 23.0), **FLAT)
+    frames, truth = render_clip(scene, QUIET, sweep, 12, 2.0)
+    centre = frames[:, 23, 31].astype(float)
+    level = QUIET.full_well_e * scene.peak_fraction / QUIET.electrons_per_dn
+    expected = level * (1 + 0.9 * np.cos(2 * np.pi * truth["order"].to_numpy()))
+    # Shot noise: sqrt(9e6 e-) = 3000 e- = 2e-4 of the level per pixel; allow 1e-3 of the level.
+    np.testing.assert_allclose(centre, expected, atol=1e-3 * level)
+
+
+# ---------------------------------------------------------------- bundled sample clips
+SAMPLES = Path(__file__).resolve().parents[1] / "sample_clips"
+SAMPLE_NAMES_ON_DISK = ["diode_scan_hops", "gas_fill_dark_drift", "mirror_drive"]
+
+
+@pytest.mark.parametrize("name", SAMPLE_NAMES_ON_DISK)
+def test_sample_clip_files_agree(name):
+    cv2 = pytest.importorskip("cv2")
+    meta = json.loads((SAMPLES / f"{name}.json").read_text())
+    truth = pd.read_csv(SAMPLES / f"{name}.truth.csv")
+    cap = cv2.VideoCapture(str(SAMPLES / f"{name}.avi"))
+    n_video = int(cap.get(cv2.CAP_PROP_FRAME_COUNT))
+    ok, first = cap.read()
+    cap.release()
+    assert ok and first.shape[:2] == (meta["height"], meta["width"])
+    assert n_video == len(truth) == meta["frames"]
+    assert truth["fringes"].iloc[-1] == pytest.approx(meta["total_fringes"], abs=1e-8)
+    # The brief's limit for followable motion: below 0.25 fringe/frame except across mode hops.
+    steps = np.abs(np.diff(truth["fringes"]))
+    hop = truth["multimode"].to_numpy()
+    calm = ~(hop[1:] | hop[:-1])
+    assert steps[calm].max() < 0.25
+    for gap in meta["gaps"]:
+        across = truth["fringes"].iloc[gap["to_frame"]] - truth["fringes"].iloc[gap["from_frame"]]
+        assert across == pytest.approx(gap["fringes_across"], abs=1e-8)
+
+
+def test_sample_wavelength_log_is_a_noisy_view_of_the_truth():
+    log = pd.read_csv(SAMPLES / "diode_scan_hops.wavelength_log.csv")
+    sweep_truth = pd.read_csv(SAMPLES / "diode_scan_hops.truth.csv")
+    true_nm = np.interp(log["time_s"], sweep_truth["time_s"], sweep_truth["wavelength_m"] * 1e9)
+    # 0.002 nm rms noise plus 0.0005 nm display rounding: 5 sd = 0.011 nm (the log has ~19 readings).
+    assert np.abs(log["wavelength_nm"] - true_nm).max() < 0.011
+    hop_times = sweep_truth.loc[sweep_truth["multimode"], "time_s"]
+    for t in log["time_s"]:
+        assert not ((hop_times - t).abs() < 0.02).any()  # no readings while multimode
+    assert np.all(np.diff(log["time_s"]) >= 0.5 - 1e-9)
+
+
+def test_demo_clip_sorts_first():
+    videos = sorted(p.name for p in SAMPLES.iterdir()
+                    if p.suffix not in (".json", ".md", ".txt", ".csv"))
+    assert videos[0] == "diode_scan_hops.avi"
+
+
+def test_sample_clip_truth_is_reproducible(tmp_path):
+    from fringecount.synthetic import make_sample_clips
+    make_sample_clips(tmp_path, names=["mirror_drive"])
+    assert (tmp_path / "mirror_drive.truth.csv").read_text() == (SAMPLES / "mirror_drive.truth.csv").read_text()
+    assert (json.loads((tmp_path / "mirror_drive.json").read_text())["total_fringes"]
+            == json.loads((SAMPLES / "mirror_drive.json").read_text())["total_fringes"])
