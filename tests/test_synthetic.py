@@ -432,3 +432,13 @@ def test_sample_clip_truth_is_reproducible(tmp_path):
     assert (tmp_path / "mirror_drive.truth.csv").read_text() == (SAMPLES / "mirror_drive.truth.csv").read_text()
     assert (json.loads((tmp_path / "mirror_drive.json").read_text())["total_fringes"]
             == json.loads((SAMPLES / "mirror_drive.json").read_text())["total_fringes"])
+
+
+def test_entry_point_help_and_bad_choice(capsys):
+    from fringecount.synthetic import main
+    with pytest.raises(SystemExit) as exc:
+        main(["--help"])
+    assert exc.value.code == 0
+    with pytest.raises(SystemExit) as exc:
+        main(["out", "--only", "no_such_clip"])
+    assert exc.value.code != 0

@@ -45,7 +45,8 @@ class Camera:
         then has variance ``mean_dn / electrons_per_dn`` in DN^2.
     exposure_fraction : float
         Exposure time as a fraction of the frame interval (0 = instantaneous). The
-        exposure is centred on the frame's time stamp.
+        exposure is centred on the frame's time stamp; the frame interval is the median
+        spacing of the time stamps (a single frame is exposed instantaneously).
     n_subsamples : int
         Instants of the sweep averaged within the exposure (motion blur).
     rgb : bool
@@ -384,7 +385,9 @@ def render_clip(scene: Scene, camera: Camera, sweep, n_frames: int, fps: float, 
             True cumulative count ``order - order[0]``; positive when the on-axis order
             grows (rings born at the centre and expanding).
         ``order``
-            On-axis interference order OPD(0)/lambda of the dominant mode at ``time_s``.
+            On-axis interference order OPD(0)/lambda of the dominant mode at ``time_s``
+            (during a mode hop the dominant mode changes at the hop's midpoint, so the
+            count steps there by the hop's whole jump).
         ``wavelength_m``
             Vacuum wavelength of the dominant mode.
         ``center_x``, ``center_y``
