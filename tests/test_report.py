@@ -13,6 +13,7 @@ import base64
 import colorsys
 import io
 import itertools
+import json
 import re
 import struct
 
@@ -240,3 +241,31 @@ def test_report_without_clip_or_gaps_still_draws(clip):
     bad.frames = bad.frames.drop(columns=["fringes"])
     with pytest.raises(InputError, match="fringes"):
         report.render_report(bad)
+
+
+def test_report_command_redraws_from_a_saved_result(clip, tmp_path, capsys):
+    """``fringecount report DIR`` after ``count``: refuses to overwrite, then redraws with --force."""
+    results = pytest.importorskip("fringecount.results", reason="results (write/read) not landed yet")
+    pipeline = pytest.importorskip("fringecount.pipeline", reason="pipeline not landed yet")
+    from fringecount.cli import main
+    from fringecount.settings import CountSettings
+
+    path, _, _ = clip
+    result = pipeline.count(path, CountSettings(fps=FPS))
+    out = tmp_path / "run"
+    results.write_result(result, out)
+    assert main(["report", str(out), "--json"]) == 0
+    printed = json.loads(capsys.readouterr().out)
+    assert printed["written"] == [str(out / "report.png"), str(out / "report.html")]
+    first = (out / "report.png").read_bytes()
+    assert abs(_png_size(first)[0] - 8.27 * 150) <= 1  # A4 width at 150 dpi (ISO 216), as above
+    # a second run refuses, with one line on stderr and exit status 3 (ResultExistsError)
+    assert main(["report", str(out)]) == 3
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and "--force" in err
+    assert (out / "report.png").read_bytes() == first
+    assert main(["report", str(out), "--force", "--quiet", "--no-thumbnails"]) == 0
+    assert capsys.readouterr() == ("", "")
+    # a folder without a result is one line, not a traceback
+    assert main(["report", str(tmp_path / "nothing")]) != 0
+    assert capsys.readouterr().err.count("\n") == 1
