@@ -359,6 +359,8 @@ def test_bad_input_raises_input_error(tmp_path):
     with pytest.raises(InputError):
         render_clip(Scene(), Camera(width=8, height=8), MirrorSweep(), 0, 10.0)
     with pytest.raises(InputError):
+        render_clip(Scene(), Camera(width=8, height=8), object(), 2, 10.0)
+    with pytest.raises(InputError):
         write_video(tmp_path / "x.avi", [np.zeros((8, 8), np.uint16)], 10.0)
     with pytest.raises(InputError):
         write_video(tmp_path / "x.mp4", [np.zeros((8, 8), np.uint8)], 10.0, codec="MJPG")
@@ -442,3 +444,16 @@ def test_entry_point_help_and_bad_choice(capsys):
     with pytest.raises(SystemExit) as exc:
         main(["out", "--only", "no_such_clip"])
     assert exc.value.code != 0
+
+
+def test_piezo_hysteresis_loop_closes_and_branches_differ():
+    from fringecount.synthetic import piezo_hysteresis_drive
+    drive = piezo_hysteresis_drive(4e-6, 10.0, 0.15)
+    assert drive(0.0) == pytest.approx(0.0, abs=1e-15) and drive(10.0) == pytest.approx(0.0, abs=1e-15)
+    assert drive(5.0) == pytest.approx(4e-6)
+    # Same voltage (u = 0.5) going up (t = 2.5 s) and down (t = 7.5 s): the branches differ by
+    # 2 h u (1 - u) x stroke = 0.075 x 4 um (the model stated in the docstring).
+    assert drive(7.5) - drive(2.5) == pytest.approx(2 * 0.15 * 0.25 * 4e-6, rel=1e-12)
+    _, truth = render_clip(Scene(), Camera(width=8, height=8), MirrorSweep(displacement_m=drive), 11, 1.0)
+    assert truth["fringes"].iloc[-1] == pytest.approx(0.0, abs=1e-9)
+    assert truth["fringes"].max() == pytest.approx(2 * 4e-6 / 632.9908e-9, rel=1e-12)

@@ -263,6 +263,9 @@ def render_frames_with_truth(scene: Scene, camera: Camera, sweep, times_s: Seque
         raise InputError("times_s must be a non-empty 1-D sequence of finite times in seconds")
     if times.size > 1 and np.any(np.diff(times) <= 0):
         raise InputError("times_s must increase strictly; pass frame times in seconds in order")
+    if not callable(getattr(sweep, "state", None)):
+        raise InputError(f"sweep {type(sweep).__name__} has no state(time_s) method; pass a "
+                         "MirrorSweep, DiodeScan, GasFill, PlateTilt or ThermalExpansion")
     gen = _as_rng(rng)
     shake_rng, noise_rng = gen.spawn(2)
     exposure_s = camera.exposure_fraction * _frame_interval_s(times)
