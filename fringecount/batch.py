@@ -47,6 +47,7 @@ import shutil
 import signal
 import sys
 import time
+import threading
 import tomllib
 import warnings
 from collections import deque
@@ -533,9 +534,6 @@ def analyse_item(item: BatchItem, out_dir: str | os.PathLike, *, force: bool = F
         ``elapsed_s`` (wall time of analysis and writing, s), ``reused`` (the
         folder already held a result) and ``warnings`` (messages raised as warnings).
     """
-    from .results import write_result
-
-    analyse = analyse or _default_analyse()
     folder = Path(out_dir) / item.result_name
     start = time.perf_counter()
     outcome: dict[str, Any] = {"status": "error", "error": None, "summary": None,
@@ -543,7 +541,9 @@ def analyse_item(item: BatchItem, out_dir: str | os.PathLike, *, force: bool = F
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
         try:
-            result = analyse(item.clip, item.settings)
+            from .results import write_result
+
+            result = (analyse or _default_analyse())(item.clip, item.settings)
             write_result(result, folder, force=force)
             outcome.update(status="ok", summary=_read_summary(folder))
         except ResultExistsError:  # another run finished it meanwhile: keep that result
@@ -696,21 +696,19 @@ def _exclusive(out_dir: Path):
 
 # --------------------------------------------------------------------------- local workers
 
-def _die_with_parent() -> None:
-    """Linux: have the kernel kill this worker when its parent dies (e.g. kill -9 of the batch)."""
-    if not sys.platform.startswith("linux"):
-        return
+def _exit_when_parent_dies(lifeline) -> None:
+    """Worker thread: the batch process never writes to ``lifeline``; EOF means it died."""
     try:
-        import ctypes
-        libc = ctypes.CDLL(None, use_errno=True)
-        libc.prctl(1, signal.SIGKILL)  # PR_SET_PDEATHSIG
-    except (OSError, AttributeError):  # pragma: no cover
+        lifeline.recv_bytes()
+    except (EOFError, OSError):
         pass
+    os._exit(70)  # the batch is gone (e.g. kill -9): stop instead of working for nobody
 
 
-def _worker_main(conn, item: BatchItem, out_dir: Path, force: bool, analyse: Callable | None) -> None:
-    _die_with_parent()
+def _worker_main(conn, lifeline, item: BatchItem, out_dir: Path, force: bool,
+                 analyse: Callable | None) -> None:
     signal.signal(signal.SIGINT, signal.SIG_IGN)  # Ctrl-C is the parent's to handle
+    threading.Thread(target=_exit_when_parent_dies, args=(lifeline,), daemon=True).start()
     outcome = analyse_item(item, out_dir, force=force, analyse=analyse)
     conn.send(outcome)
     conn.close()
@@ -732,8 +730,13 @@ def _crash_message(exitcode: int | None) -> str:
 class _Running:
     process: Any
     conn: Any
+    lifeline: Any
     item: BatchItem
     started: float
+
+    def close(self) -> None:
+        self.conn.close()
+        self.lifeline.close()
 
 
 def _worker_context():
@@ -755,11 +758,13 @@ def _run_local(items: list[BatchItem], out_dir: Path, *, jobs: int, force: bool,
             while pending and len(running) < jobs:
                 item = pending.popleft()
                 receiver, sender = ctx.Pipe(duplex=False)
+                life_reader, life_writer = ctx.Pipe(duplex=False)
                 process = ctx.Process(target=_worker_main, name=f"fringecount-batch {item.name}",
-                                      args=(sender, item, out_dir, force, analyse))
+                                      args=(sender, life_reader, item, out_dir, force, analyse))
                 process.start()
                 sender.close()
-                running[process.sentinel] = _Running(process, receiver, item, time.monotonic())
+                life_reader.close()
+                running[process.sentinel] = _Running(process, receiver, life_writer, item, time.monotonic())
             wait_s = None
             if timeout_s is not None:
                 now = time.monotonic()
@@ -786,7 +791,7 @@ def _run_local(items: list[BatchItem], out_dir: Path, *, jobs: int, force: bool,
                 if outcome is None:
                     outcome = {"status": "error", "elapsed_s": now - run.started, "reused": False,
                                "error": _crash_message(run.process.exitcode)}
-                run.conn.close()
+                run.close()
                 run.process.close()
                 del running[sentinel]
                 finish(run.item, outcome)
@@ -795,7 +800,7 @@ def _run_local(items: list[BatchItem], out_dir: Path, *, jobs: int, force: bool,
             run.process.kill()
         for run in running.values():
             run.process.join()
-            run.conn.close()
+            run.close()
 
 
 def _run_inline(items: list[BatchItem], out_dir: Path, *, force: bool, analyse: Callable | None,
@@ -806,7 +811,7 @@ def _run_inline(items: list[BatchItem], out_dir: Path, *, force: bool, analyse: 
 
 # --------------------------------------------------------------------------- Dask
 
-def _run_dask(items: list[BatchItem], out_dir: Path, *, address: Any, force: bool,
+def _run_dask(items: list[BatchItem], out_dir: Path, *, address: Any, force: bool, connect_timeout_s: float,
               analyse: Callable | None, finish: Callable[[BatchItem, dict], None]) -> None:
     """Run each clip as one task on a Dask distributed cluster (scheduler at ``address``)."""
     try:
@@ -817,7 +822,7 @@ def _run_dask(items: list[BatchItem], out_dir: Path, *, address: Any, force: boo
     own_client = not isinstance(address, Client)
     if own_client:
         try:
-            client = Client(address, timeout="20s", set_as_default=False)
+            client = Client(address, timeout=connect_timeout_s, set_as_default=False)
         except (OSError, TimeoutError, ValueError) as exc:
             raise InputError(f"cannot reach the Dask scheduler at {address} ({_one_line(exc)}); "
                              "check the address (e.g. tcp://host:8786) and that the scheduler runs") from None
@@ -830,15 +835,16 @@ def _run_dask(items: list[BatchItem], out_dir: Path, *, address: Any, force: boo
                                    pure=False, key=f"fringecount-batch-{item.result_name}-{os.getpid()}-"
                                                    f"{time.time_ns()}")
             futures[future] = item
-        for future in as_completed(list(futures)):
-            item = futures.pop(future)
-            try:
-                outcome = future.result()
-            except Exception as exc:  # noqa: BLE001 - KilledWorker, lost worker, cancelled...
-                outcome = {"status": "error", "elapsed_s": None, "reused": False,
-                           "error": _one_line(f"the Dask task for this clip failed ({type(exc).__name__}: "
-                                              f"{exc}); a worker may have crashed on it")}
-            finish(item, outcome)
+        with client.as_current():
+            for future in as_completed(list(futures)):
+                item = futures.pop(future)
+                try:
+                    outcome = future.result()
+                except Exception as exc:  # noqa: BLE001 - KilledWorker, lost worker, cancelled...
+                    outcome = {"status": "error", "elapsed_s": None, "reused": False,
+                               "error": _one_line(f"the Dask task for this clip failed ({type(exc).__name__}: "
+                                                  f"{exc}); a worker may have crashed on it")}
+                finish(item, outcome)
     finally:
         if futures:
             client.cancel(list(futures))
@@ -879,7 +885,8 @@ class BatchReport:
 
 def run_batch(source: str | os.PathLike | list[BatchItem], out_dir: str | os.PathLike, *,
               settings: CountSettings | None = None, jobs: int | None = None, force: bool = False,
-              dask: Any = None, timeout_s: float | None = None, analyse: Callable | None = None,
+              dask: Any = None, dask_timeout_s: float = 20.0, timeout_s: float | None = None,
+              analyse: Callable | None = None,
               progress: Callable[[dict], None] | None = None,
               flush_every_s: float = 10.0) -> BatchReport:
     """Analyse every clip of a batch into its own result folder under ``out_dir``.
@@ -905,6 +912,8 @@ def run_batch(source: str | os.PathLike | list[BatchItem], out_dir: str | os.Pat
         Run on a Dask distributed cluster instead: the scheduler address
         (``tcp://host:8786``) or a connected client. Clips and ``out_dir`` must be
         reachable from every worker under the same paths.
+    dask_timeout_s : float
+        How long to try to reach the Dask scheduler (s).
     timeout_s : float, optional
         Local runs: stop a clip's worker after this many seconds (an ``error`` row).
     analyse : callable, optional
@@ -1000,7 +1009,8 @@ def run_batch(source: str | os.PathLike | list[BatchItem], out_dir: str | os.Pat
             if not todo:
                 pass
             elif dask is not None:
-                _run_dask(todo, out_dir, address=dask, force=force, analyse=analyse, finish=finish)
+                _run_dask(todo, out_dir, address=dask, force=force, connect_timeout_s=dask_timeout_s,
+                          analyse=analyse, finish=finish)
             elif jobs == 0:
                 _run_inline(todo, out_dir, force=force, analyse=analyse, finish=finish)
             else:

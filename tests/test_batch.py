@@ -7,6 +7,7 @@ end-to-end tests at the bottom run the real ``count`` on synthetic clips.
 
 from __future__ import annotations
 
+import importlib.util
 import json
 import os
 import signal
@@ -21,6 +22,11 @@ import tifffile
 from fringecount import batch as B
 from fringecount.errors import ClipError, InputError, SettingsError
 from fringecount.settings import CountSettings
+
+#: The running tests write real result folders (fringecount.results) of CountResult objects.
+needs_core = pytest.mark.skipif(
+    importlib.util.find_spec("fringecount.results") is None or importlib.util.find_spec("fringecount.pipeline") is None,
+    reason="fringecount.results / fringecount.pipeline not in this checkout yet")
 
 
 # --------------------------------------------------------------------------- planning
@@ -196,3 +202,149 @@ def test_plan_batch_dispatches_and_reports_missing_source(tmp_path):
     assert [it.clip for it in B.plan_batch(tmp_path / "m.csv")] == [tmp_path / "clips" / "a.avi"]
     with pytest.raises(InputError, match="does not exist"):
         B.plan_batch(tmp_path / "nothing")
+
+
+# --------------------------------------------------------------------------- running (injected analysis)
+# The "clips" here are small text files that tell the injected analysis what to do,
+# so each failure mode (bad clip, bug, worker crash, hang) happens on purpose.
+
+def _fake_result(total: float, clip: Path):
+    from fringecount.pipeline import CountResult
+
+    frames = pd.DataFrame({"frame": [0, 1], "time_s": [0.0, 0.1], "fringes": [0.0, total],
+                           "visibility": [0.5, 0.5], "trusted": [True, True]})
+    gaps = pd.DataFrame(columns=["first_frame", "last_frame", "reason", "fringes_across",
+                                 "fringes_across_sigma", "ambiguous"])
+    summary = {"total_fringes": total, "total_fringes_sigma": 0.01, "frames": 2, "fps": 10.0,
+               "gaps": [], "clip": str(clip)}
+    return CountResult(frames=frames, gaps=gaps, summary=summary)
+
+
+def scripted_analyse(clip, settings):
+    """Analysis injected into the batch: the clip file says what happens."""
+    kind, _, arg = Path(clip).read_text().strip().partition(" ")
+    if kind == "ok":
+        return _fake_result(float(arg), clip)
+    if kind == "bad":
+        raise ClipError(f"{Path(clip).name} is truncated after frame 3; export it again")
+    if kind == "bug":
+        raise ZeroDivisionError("division by zero in a stage")
+    if kind == "exit":
+        os._exit(3)  # a worker that dies without a word
+    if kind == "segv":
+        os.kill(os.getpid(), signal.SIGSEGV)  # a crashing decoder
+    if kind == "hang":
+        time.sleep(60)
+    raise AssertionError(kind)
+
+
+def _archive(root: Path, scripts: dict[str, str]) -> Path:
+    for name, script in scripts.items():
+        _touch(root / name, script.encode())
+    return root
+
+
+def _stat(folder: Path) -> dict[str, tuple[int, int]]:
+    return {p.name: (p.stat().st_ino, p.stat().st_mtime_ns) for p in sorted(folder.iterdir())}
+
+
+@needs_core
+def test_failures_are_isolated_and_reported_per_clip(tmp_path):
+    src = _archive(tmp_path / "src", {
+        "a_ok.avi": "ok 12.5", "b_bad.avi": "bad", "c_bug.avi": "bug", "d_exit.avi": "exit",
+        "e_segv.avi": "segv", "f_ok.avi": "ok -3.25"})
+    out = tmp_path / "out"
+    seen = []
+    report = B.run_batch(src, out, jobs=2, analyse=scripted_analyse, progress=seen.append)
+    t = report.table.set_index("clip")
+    assert list(report.table["clip"]) == sorted(t.index)  # batch order, not finishing order
+    assert sorted(r["clip"] for r in seen) == sorted(t.index)
+    assert t.loc["a_ok.avi", "status"] == "ok" and t.loc["a_ok.avi", "total_fringes"] == 12.5
+    assert t.loc["f_ok.avi", "total_fringes"] == -3.25 and t.loc["f_ok.avi", "n_gaps"] == 0
+    assert t.loc["b_bad.avi", "error"] == "b_bad.avi is truncated after frame 3; export it again"
+    assert t.loc["c_bug.avi", "error"].startswith("internal error: ZeroDivisionError")
+    assert "exit code 3" in t.loc["d_exit.avi", "error"]
+    assert "SIGSEGV" in t.loc["e_segv.avi", "error"]
+    assert (t["status"] == "error").sum() == 4 and report.n_failed == 4 and report.n_ok == 2
+    assert t.loc["b_bad.avi", ["total_fringes", "result_dir"]].isna().all()
+    for clip in ("a_ok.avi", "f_ok.avi"):
+        folder = out / t.loc[clip, "result_dir"]
+        assert json.loads((folder / "summary.json").read_text())["total_fringes"] == t.loc[clip, "total_fringes"]
+    assert not any(p.name.startswith(".") and p.name != ".batch.lock" for p in out.iterdir())
+    # The table on disk is the returned one, as CSV and Parquet.
+    on_disk = pd.read_csv(out / "batch.csv")
+    assert list(on_disk.columns) == list(B.BATCH_COLUMNS)
+    assert list(on_disk["status"]) == list(report.table["status"])
+    np.testing.assert_array_equal(pd.read_parquet(out / "batch.parquet")["total_fringes"],
+                                  report.table["total_fringes"])
+
+
+@needs_core
+def test_rerun_skips_finished_clips_and_retries_failed_ones(tmp_path):
+    src = _archive(tmp_path / "src", {"a.avi": "ok 1.5", "b.avi": "bad", "c.avi": "ok 2.0"})
+    out = tmp_path / "out"
+    first = B.run_batch(src, out, jobs=2, analyse=scripted_analyse)
+    folders = {name: out / d for name, d in zip(first.table["clip"], first.table["result_dir"]) if isinstance(d, str)}
+    before = {name: _stat(f) for name, f in folders.items()}
+    (src / "b.avi").write_text("ok 7.0")  # the damaged clip was replaced
+    (src / "a.avi").write_text("exit")  # would crash if it were analysed again
+    second = B.run_batch(src, out, jobs=2, analyse=scripted_analyse)
+    t = second.table.set_index("clip")
+    assert list(t["status"]) == ["ok", "ok", "ok"]
+    assert list(t["reused"]) == [True, False, True]
+    assert t.loc["a.avi", "total_fringes"] == 1.5 and np.isnan(t.loc["a.avi", "elapsed_s"])
+    assert t.loc["b.avi", "total_fringes"] == 7.0
+    assert {name: _stat(f) for name, f in folders.items()} == before  # untouched
+    # --force analyses everything again: a's crash now shows.
+    forced = B.run_batch(src, out, jobs=2, analyse=scripted_analyse, force=True).table.set_index("clip")
+    assert forced.loc["a.avi", "status"] == "error" and not forced["reused"].any()
+    assert (out / t.loc["a.avi", "result_dir"] / "summary.json").exists()  # a failed re-run keeps the old result
+
+
+@needs_core
+def test_stale_staging_is_cleaned_and_interrupted_replacement_restored(tmp_path):
+    src = _archive(tmp_path / "src", {"a.avi": "ok 1.0", "b.avi": "ok 2.0"})
+    out = tmp_path / "out"
+    B.run_batch(src, out, jobs=0, analyse=scripted_analyse)
+    name_a, name_b = B.result_folder_name("a.avi"), B.result_folder_name("b.avi")
+    # What kill -9 can leave: a half-written result, a table copy, and a result moved
+    # aside for replacement (--force) whose successor never arrived.
+    _touch(out / f".{name_a}.k2x_9abc.part" / "frames.csv")
+    _touch(out / ".batch.csv.zz81_q0a.part", b"clip,sta")
+    os.replace(out / name_b, out / f".{name_b}.p1q2r3s4.old")
+    keep = _touch(out / ".notes.part" / "mine.txt")  # not ours: left alone
+    removed = B.clean_stale_staging(out)
+    assert sorted(p.name for p in removed) == sorted([f".{name_a}.k2x_9abc.part", ".batch.csv.zz81_q0a.part"])
+    assert json.loads((out / name_b / "summary.json").read_text())["total_fringes"] == 2.0
+    assert keep.exists()
+
+
+@needs_core
+def test_timeout_stops_a_hanging_clip(tmp_path):
+    src = _archive(tmp_path / "src", {"a.avi": "hang", "b.avi": "ok 4.0"})
+    start = time.monotonic()
+    t = B.run_batch(src, tmp_path / "out", jobs=2, timeout_s=1.5, analyse=scripted_analyse).table
+    assert time.monotonic() - start < 30  # far below the 60 s the clip would hang
+    assert "1.5 s timeout" in t.loc[0, "error"] and t.loc[1, "status"] == "ok"
+
+
+def test_second_batch_on_the_same_output_is_refused(tmp_path):
+    import fcntl
+
+    src = _archive(tmp_path / "src", {"a.avi": "ok 1.0"})
+    out = tmp_path / "out"
+    out.mkdir()
+    with open(out / ".batch.lock", "a+b") as fh:
+        fcntl.flock(fh.fileno(), fcntl.LOCK_EX)
+        with pytest.raises(InputError, match="another batch is writing"):
+            B.run_batch(src, out, jobs=0, analyse=scripted_analyse)
+
+
+@pytest.mark.parametrize("kwargs,fragment", [
+    ({"jobs": -1}, "jobs must be"),
+    ({"timeout_s": 0.0}, "timeout must be"),
+])
+def test_bad_run_options(tmp_path, kwargs, fragment):
+    src = _archive(tmp_path / "src", {"a.avi": "ok 1.0"})
+    with pytest.raises(InputError, match=fragment):
+        B.run_batch(src, tmp_path / "out", analyse=scripted_analyse, **kwargs)

@@ -1,0 +1,62 @@
+"""Batch on a Dask distributed cluster (a LocalCluster stands in for a lab's cluster)."""
+
+from __future__ import annotations
+
+import json
+
+import pytest
+
+distributed = pytest.importorskip("distributed")
+
+from fringecount import batch as B  # noqa: E402
+from fringecount.errors import InputError  # noqa: E402
+
+from test_batch import _archive, needs_core, scripted_analyse  # noqa: E402  (tests/ is on sys.path under pytest)
+
+pytestmark = needs_core
+
+
+@pytest.fixture(scope="module")
+def cluster():
+    # In-process workers keep the test light (no worker processes to start); the
+    # workers still run the tasks concurrently and write the result folders themselves.
+    with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=False,
+                                  dashboard_address=None, silence_logs="error") as c:
+        yield c
+
+
+def test_dask_batch_matches_the_local_batch(tmp_path, cluster):
+    src = _archive(tmp_path / "src", {"a.avi": "ok 3.5", "b.avi": "bad", "sub/c.avi": "ok -1.0",
+                                      "d.avi": "bug"})
+    local = B.run_batch(src, tmp_path / "local", jobs=0, analyse=scripted_analyse).table
+    on_dask = B.run_batch(src, tmp_path / "dask", dask=cluster.scheduler_address,
+                          analyse=scripted_analyse).table
+    columns = ["clip", "status", "total_fringes", "error", "result_dir", "n_gaps"]
+    assert on_dask[columns].equals(local[columns])
+    assert list(on_dask["status"]) == ["ok", "error", "error", "ok"]
+    for d in on_dask["result_dir"].dropna():  # written by the workers into the shared folder
+        assert json.loads((tmp_path / "dask" / d / "summary.json").read_text())["frames"] == 2
+    assert (tmp_path / "dask" / "batch.csv").exists()
+
+
+def test_dask_batch_resumes_and_accepts_a_client(tmp_path, cluster):
+    src = _archive(tmp_path / "src", {"a.avi": "ok 1.0", "b.avi": "ok 2.0"})
+    out = tmp_path / "out"
+    with distributed.Client(cluster, set_as_default=False) as client:
+        first = B.run_batch(src, out, dask=client, analyse=scripted_analyse).table
+        (src / "a.avi").write_text("exit")  # would kill the worker if analysed again
+        second = B.run_batch(src, out, dask=client, analyse=scripted_analyse).table
+        assert client.status == "running"  # a client passed in is not closed
+    assert list(first["reused"]) == [False, False]
+    assert list(second["reused"]) == [True, True] and list(second["total_fringes"]) == [1.0, 2.0]
+
+
+def test_unreachable_scheduler_is_an_input_error(tmp_path, monkeypatch):
+    src = _archive(tmp_path / "src", {"a.avi": "ok 1.0"})
+    # Nothing listens on this loopback address; keep the connect timeout short.
+    import dask
+
+    with dask.config.set({"distributed.comm.timeouts.connect": "1s"}):
+        with pytest.raises(InputError, match="cannot reach the Dask scheduler"):
+            B.run_batch(src, tmp_path / "out", dask="tcp://127.0.0.1:9", analyse=scripted_analyse,
+                        dask_timeout_s=2.0)
