@@ -523,3 +523,68 @@ def test_iteration_memory_does_not_grow_with_clip_length(tmp_path, kind):
     # Whole clip: 3.3 MB. Streaming holds a few frames (8 kB each) plus per-page
     # bookkeeping; a fifth of the clip leaves room for that and fails any full read.
     assert peak < clip_bytes / 5, peak
+
+
+# -- containers that lie about their length, files cut short ----------------------------------
+
+def _avi_with_claimed_length(path: pathlib.Path, claim: int) -> pathlib.Path:
+    """Rewrite the frame count in an AVI's main header (avih dwTotalFrames) and stream
+    header (strh dwLength), as laid out in the AVI RIFF format (Microsoft, from memory)."""
+    data = bytearray(path.read_bytes())
+    avih, strh = data.find(b"avih"), data.find(b"strh")
+    assert avih > 0 and strh > 0
+    data[avih + 24: avih + 28] = claim.to_bytes(4, "little")
+    data[strh + 40: strh + 44] = claim.to_bytes(4, "little")
+    out = path.with_name(f"claims{claim}.avi")
+    out.write_bytes(bytes(data))
+    return out
+
+
+@pytest.mark.parametrize("claim", [5, 30])
+def test_video_header_frame_count_is_verified(tmp_path, claim, caplog):
+    frames = grey_stack()
+    path = _avi_with_claimed_length(write_video(tmp_path / "c.avi", frames, "FFV1"), claim)
+    assert cv2.VideoCapture(str(path)).get(cv2.CAP_PROP_FRAME_COUNT) == claim   # OpenCV believes the header
+    with caplog.at_level(logging.INFO, logger="fringecount.frames"):
+        clip = open_frames(path)
+    with clip:
+        assert len(clip) == N_FRAMES and clip.metadata["n_frames_reported"] == claim
+        assert clip.metadata["truncated"] is False          # complete file, only the header was wrong
+        assert str(N_FRAMES) in " ".join(r.getMessage() for r in caplog.records)
+        for f in clip:
+            np.testing.assert_array_equal(f.image, frames[f.index])
+
+
+def test_cut_files_are_recognised_by_their_size_fields(tmp_path):
+    from fringecount._readers.video import file_is_cut
+    for name, fourcc in (("c.avi", "MJPG"), ("c.mp4", "mp4v"), ("c.mkv", "MJPG"), ("c.mov", "mp4v")):
+        whole = write_video(tmp_path / name, grey_stack(6), fourcc)
+        assert file_is_cut(whole) is False, name
+        cut = tmp_path / f"cut_{name}"
+        cut.write_bytes(whole.read_bytes()[: whole.stat().st_size * 2 // 3])
+        assert file_is_cut(cut) is True, name
+
+
+@pytest.mark.parametrize("kind", ["tiff", "npy"])
+def test_cut_stack_gives_its_complete_frames(tmp_path, kind, caplog):
+    frames = grey_stack(dtype=np.uint16)
+    path = tmp_path / ("s.tif" if kind == "tiff" else "s.npy")
+    if kind == "tiff":
+        tifffile.imwrite(path, frames)
+    else:
+        np.save(path, frames)
+    frame_bytes = frames[0].nbytes
+    whole = path.read_bytes()
+    # Cut in the middle of frame 7 (frames are stored last, contiguously, in both files here).
+    keep = len(whole) - (N_FRAMES - 7) * frame_bytes + frame_bytes // 2
+    if kind == "tiff":
+        with tifffile.TiffFile(path) as tif:
+            keep = tif.series[0].dataoffset + 7 * frame_bytes + frame_bytes // 2
+    path.write_bytes(whole[:keep])
+    with caplog.at_level(logging.WARNING, logger="fringecount.frames"):
+        clip = open_frames(path, fps=FPS)
+    with clip:
+        assert len(clip) == 7 and clip.metadata["truncated"] is True
+        assert "truncated" in caplog.text
+        for f in clip:
+            np.testing.assert_array_equal(f.image, frames[f.index])

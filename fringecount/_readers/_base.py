@@ -9,6 +9,7 @@ shape and sample type, and chooses the colour channel.
 from __future__ import annotations
 
 import abc
+import contextlib
 import logging
 import math
 import operator
@@ -24,7 +25,7 @@ from ..errors import ClipError, SettingsError
 from ..settings import CHANNELS
 
 __all__ = ["Frame", "FrameSource", "UnreadableFrame", "check_fps_override", "container_fps_ok",
-           "MAX_CONTAINER_FPS", "MAX_OVERRIDE_FPS"]
+           "MAX_CONTAINER_FPS", "MAX_OVERRIDE_FPS", "quiet_opencv"]
 
 logger = logging.getLogger("fringecount.frames")
 
@@ -227,6 +228,22 @@ def choose_channel(samples: list[np.ndarray], order: str, top: float | None) -> 
     if len(usable) == len(names) and scores["gray"] >= GRAY_PREFERENCE * scores[best]:
         best = "gray"
     return best, scores
+
+
+@contextlib.contextmanager
+def quiet_opencv() -> Iterator[None]:
+    """Silence OpenCV's console messages while it probes or decodes a file (our logger reports instead)."""
+    logging_api = getattr(getattr(cv2, "utils", None), "logging", None)
+    if logging_api is None:
+        yield
+        return
+    previous = logging_api.getLogLevel()
+    logging_api.setLogLevel(logging_api.LOG_LEVEL_SILENT)
+    try:
+        yield
+    finally:
+        logging_api.setLogLevel(previous)
+
 
 
 class FrameSource(abc.ABC):

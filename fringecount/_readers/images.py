@@ -10,7 +10,7 @@ import cv2
 import numpy as np
 
 from ..errors import ClipError
-from ._base import FrameSource, UnreadableFrame
+from ._base import FrameSource, UnreadableFrame, quiet_opencv
 
 __all__ = ["ImageFolderSource", "IMAGE_SUFFIXES", "natural_key"]
 
@@ -39,7 +39,11 @@ def read_image(path: pathlib.Path) -> np.ndarray:
         data = np.fromfile(path, dtype=np.uint8)
     except OSError as exc:
         raise UnreadableFrame(f"cannot read {path.name}: {exc.strerror or exc}") from None
-    image = cv2.imdecode(data, cv2.IMREAD_UNCHANGED) if data.size else None
+    try:
+        with quiet_opencv():
+            image = cv2.imdecode(data, cv2.IMREAD_UNCHANGED) if data.size else None
+    except cv2.error:            # e.g. a header claiming more pixels than OpenCV allows
+        image = None
     if image is None:
         raise UnreadableFrame(f"{path.name} is not a readable image")
     return image

@@ -13,7 +13,7 @@ import cv2
 import numpy as np
 
 from ..errors import ClipError
-from ._base import Frame, FrameSource, UnreadableFrame, container_fps_ok, logger
+from ._base import Frame, FrameSource, UnreadableFrame, container_fps_ok, logger, quiet_opencv
 
 __all__ = ["VideoSource", "VIDEO_SUFFIXES", "looks_like"]
 
@@ -77,30 +77,100 @@ def looks_like(path: pathlib.Path, suffix: str) -> bool:
     return VIDEO_SUFFIXES[suffix][1](head)
 
 
-@contextlib.contextmanager
-def _quiet_opencv() -> Iterator[None]:
-    """Silence OpenCV's own warnings while it probes a file (our logger reports instead)."""
-    logging_api = getattr(getattr(cv2, "utils", None), "logging", None)
-    if logging_api is None:
-        yield
-        return
-    previous = logging_api.getLogLevel()
-    logging_api.setLogLevel(logging_api.LOG_LEVEL_ERROR)
+def _riff_cut(fh, size: int) -> bool | None:
+    head = fh.read(12)
+    declared = int.from_bytes(head[4:8], "little") + 8
+    return size < declared
+
+
+def _iso_cut(fh, size: int) -> bool | None:
+    """Walk the top-level boxes: a box reaching past the end of the file means it was cut."""
+    position = 0
+    while position < size:
+        fh.seek(position)
+        head = fh.read(16)
+        if len(head) < 8:
+            return True
+        box = int.from_bytes(head[:4], "big")
+        if box == 1:
+            if len(head) < 16:
+                return True
+            box = int.from_bytes(head[8:16], "big")
+        elif box == 0:           # runs to the end of the file
+            return False
+        if box < 8:
+            return None          # not a box structure we understand
+        position += box
+    return position > size
+
+
+def _ebml_size(data: bytes, at: int) -> tuple[int | None, int]:
+    """An EBML variable-length size at ``data[at:]``: (value or None if unknown, bytes used)."""
+    first = data[at]
+    length = 9 - first.bit_length() if first else 9
+    if length > 8 or at + length > len(data):
+        raise ValueError("bad EBML size")
+    value = first & (0xFF >> length)
+    for byte in data[at + 1: at + length]:
+        value = (value << 8) | byte
+    return (None if value == (1 << (7 * length)) - 1 else value), length
+
+
+def _matroska_cut(fh, size: int) -> bool | None:
+    data = fh.read(4096)
     try:
-        yield
-    finally:
-        logging_api.setLogLevel(previous)
+        header, used = _ebml_size(data, 4)
+        at = 4 + used + (header or 0)
+        if data[at:at + 4] != b"\x18\x53\x80\x67":    # Segment
+            return None
+        segment, used = _ebml_size(data, at + 4)
+    except (ValueError, IndexError):
+        return None
+    return None if segment is None else size < at + 4 + used + segment
+
+
+_CUT_CHECKS = {"AVI": _riff_cut, "MP4": _iso_cut, "QuickTime": _iso_cut, "3GP": _iso_cut,
+               "Matroska": _matroska_cut, "WebM": _matroska_cut}
+
+
+def file_is_cut(path: pathlib.Path) -> bool | None:
+    """True if the container's own size fields reach past the end of the file, False if
+    they fit it exactly, None where the container gives no such check."""
+    check = _CUT_CHECKS.get(VIDEO_SUFFIXES.get(path.suffix.lower(), ("",))[0])
+    if check is None:
+        return None
+    size = path.stat().st_size
+    with open(path, "rb") as fh:
+        return check(fh, size)
 
 
 def _capture(path: pathlib.Path) -> cv2.VideoCapture:
     params = [cv2.CAP_PROP_OPEN_TIMEOUT_MSEC, _TIMEOUT_MS, cv2.CAP_PROP_READ_TIMEOUT_MSEC, _TIMEOUT_MS]
-    with _quiet_opencv():
-        cap = cv2.VideoCapture(str(path), cv2.CAP_FFMPEG, params)
-    if not cap.isOpened():
-        cap.release()
+    try:
+        with quiet_opencv():
+            cap = cv2.VideoCapture(str(path), cv2.CAP_FFMPEG, params)
+    except cv2.error:
+        cap = None
+    if cap is None or not cap.isOpened():
+        if cap is not None:
+            cap.release()
         raise ClipError(f"cannot open {path.name} as a video (damaged, incomplete or an unknown codec); "
                         "check the file, or convert it to MP4 or AVI")
     return cap
+
+
+def _grab(cap: cv2.VideoCapture) -> bool:
+    try:
+        return bool(cap.grab())
+    except cv2.error:
+        return False
+
+
+def _read(cap: cv2.VideoCapture) -> tuple[bool, np.ndarray | None]:
+    try:
+        return cap.read()
+    except cv2.error:
+        return False, None
 
 
 def _fourcc(cap: cv2.VideoCapture) -> str:
@@ -111,14 +181,20 @@ def _fourcc(cap: cv2.VideoCapture) -> str:
 
 def _decodable(cap: cv2.VideoCapture, index: int) -> bool:
     """True if frame ``index`` can be decoded (seeks the capture)."""
-    return bool(cap.set(cv2.CAP_PROP_POS_FRAMES, index)) and bool(cap.grab())
+    try:
+        return bool(cap.set(cv2.CAP_PROP_POS_FRAMES, index)) and bool(cap.grab())
+    except cv2.error:
+        return False
 
 
 def _count_forward(cap: cv2.VideoCapture, start: int) -> int:
     """Number of frames, counting by decoding on from frame ``start`` (already positioned)."""
     n = start
-    while cap.grab():
-        n += 1
+    try:
+        while cap.grab():
+            n += 1
+    except cv2.error:
+        pass
     return n
 
 
@@ -127,9 +203,12 @@ class VideoSource(FrameSource):
 
     The frame count from the container is checked at open time: the last frame
     claimed must decode, otherwise the last decodable frame is found by
-    bisection, a warning is logged and ``metadata["truncated"]`` is set; that
-    last frame is left out too, as it may be incomplete (a cut MJPG frame in AVI
-    decodes with garbage in its lower part). A
+    bisection and a warning is logged. If the container's own size fields show
+    the file was cut (AVI RIFF size, MP4/MOV boxes, Matroska segment size;
+    ``metadata["file_cut"]``), or cannot tell, ``metadata["truncated"]`` is set
+    and that last frame is left out too, as it may be incomplete (a cut MJPG
+    frame in AVI decodes with garbage in its lower part). If the file is
+    complete, the header merely over-counted and every decodable frame is kept. A
     container that claims no frames is counted by decoding it once.
 
     Notes
@@ -153,7 +232,7 @@ class VideoSource(FrameSource):
         cap = _capture(path)
         self._cap = cap
         try:
-            ok, first = cap.read()
+            ok, first = _read(cap)
             if not ok or first is None:
                 raise ClipError(f"{path.name} opens as a video but not even its first frame decodes; "
                                 "check the file (it may be damaged or empty)")
@@ -188,7 +267,7 @@ class VideoSource(FrameSource):
             cap.set(cv2.CAP_PROP_POS_FRAMES, 0)
             return _count_forward(cap, 0)
         if _decodable(cap, claimed - 1):
-            if cap.grab():           # the container under-reports: count the rest
+            if _grab(cap):           # the container under-reports: count the rest
                 n = _count_forward(cap, claimed + 1)
                 logger.info("%s holds %d frames although its header says %d", self.path.name, n, claimed)
                 return n
@@ -200,8 +279,14 @@ class VideoSource(FrameSource):
                 good = mid
             else:
                 bad = mid
-        # The last frame that decodes may be cut short: MJPG in AVI, for one, decodes a
-        # frame whose tail is missing as grey garbage. Drop it unless it is frame 0.
+        cut = file_is_cut(self.path)
+        self.metadata["file_cut"] = cut
+        if cut is False:
+            logger.warning("%s: its header promises %d frames but %d decode, and the file is complete; "
+                           "reading %d", self.path.name, claimed, good + 1, good + 1)
+            return good + 1
+        # In a cut file the last frame that decodes may be incomplete: MJPG in AVI, for one,
+        # decodes a frame whose tail is missing with garbage. Drop it unless it is frame 0.
         n = max(good, 1)
         logger.warning("%s is truncated: its header promises %d frames but only %d decode; reading %d "
                        "(the last one may be incomplete)", self.path.name, claimed, good + 1, n)
@@ -215,6 +300,13 @@ class VideoSource(FrameSource):
         if cached is not None:
             self._cache.move_to_end(index)
             return cached
+        try:
+            return self._decode(index)
+        except cv2.error as exc:
+            self._position = -1
+            raise UnreadableFrame(f"frame {index}: OpenCV error {exc.code}") from None
+
+    def _decode(self, index: int) -> np.ndarray:
         cap = self._cap
         ahead = index - self._position
         if self._position < 0 or not 0 <= ahead <= _FORWARD_LIMIT:
@@ -223,7 +315,7 @@ class VideoSource(FrameSource):
             self._position = index
         else:
             for _ in range(ahead):
-                if not cap.grab():
+                if not _grab(cap):
                     failed, self._position = self._position, -1
                     raise UnreadableFrame(f"frame {failed} does not decode")
                 self._position += 1
@@ -257,11 +349,11 @@ class VideoSource(FrameSource):
             index, time_s = next(wanted)
             while True:
                 while position < index:
-                    if not cap.grab():
+                    if not _grab(cap):
                         self._stopped_early(position)
                         return
                     position += 1
-                ok, raw = cap.read()
+                ok, raw = _read(cap)
                 if not ok or raw is None:
                     self._stopped_early(position)
                     return
