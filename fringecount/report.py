@@ -45,6 +45,7 @@ __all__ = [
     "ReportFigure",
     "RoiFigure",
     "format_value_sigma",
+    "reason_label",
     "reason_styles",
     "render_report",
     "render_roi",
@@ -70,6 +71,17 @@ OKABE_ITO: dict[str, str] = {
 _REASON_COLOURS = ("orange", "vermillion", "reddish purple", "sky blue", "bluish green", "yellow")
 #: Hatches for gap reasons, so that the shading survives greyscale print.
 _REASON_HATCHES = ("///", "\\\\\\", "xxx", "...", "+++", "ooo", "---", "|||")
+#: Fixed styles for the reasons fringecount.gaps gives (colour name, hatch).
+_KNOWN_REASONS = {
+    "low_visibility": ("orange", "///"),
+    "dark": ("reddish purple", "\\\\\\"),
+    "saturated": ("vermillion", "xxx"),
+    "center_lost": ("bluish green", "..."),
+    "too_fast": ("sky blue", "+++"),
+}
+
+#: Opacity of the gap tint on the count panel (the other panels use two thirds of it).
+GAP_TINT = 0.28
 
 #: Panel titles, in page order.
 PANEL_SUMMARY = "Summary"
@@ -150,7 +162,7 @@ def format_value_sigma(value: float, sigma: float, *, unit: str = "", signed: bo
 
 
 def reason_styles(reasons: Iterable[str]) -> dict[str, tuple[str, str]]:
-    """Colour (hex) and hatch for each gap reason, in order of first appearance.
+    """Colour (hex) and hatch for each gap reason.
 
     Parameters
     ----------
@@ -160,19 +172,32 @@ def reason_styles(reasons: Iterable[str]) -> dict[str, tuple[str, str]]:
     Returns
     -------
     dict
-        ``reason -> (colour, hatch)``. Colours cycle through six Okabe–Ito
-        colours; hatches through eight patterns, so the first 24 reasons all
-        differ in colour or hatch.
+        ``reason -> (colour, hatch)``. The reasons of :mod:`fringecount.gaps`
+        keep one style in every report (``saturated`` is vermillion, as the
+        saturated pixels of the ROI picture); other reasons take the unused
+        Okabe–Ito colours in order of appearance. Six reasons get six colours;
+        beyond that colours repeat with a different hatch.
     """
     styles: dict[str, tuple[str, str]] = {}
+    used_colours: list[str] = []
     for reason in reasons:
         if reason in styles:
             continue
-        i = len(styles)
-        colour = OKABE_ITO[_REASON_COLOURS[i % len(_REASON_COLOURS)]]
-        hatch = _REASON_HATCHES[i % len(_REASON_HATCHES)]
-        styles[reason] = (colour, hatch)
+        colour_name, hatch = _KNOWN_REASONS.get(reason, (None, None))
+        if colour_name is None or colour_name in used_colours:
+            free = [c for c in _REASON_COLOURS if c not in used_colours]
+            colour_name = free[0] if free else _REASON_COLOURS[len(styles) % len(_REASON_COLOURS)]
+        if hatch is None or hatch in (h for _, h in styles.values()):
+            hatch = next((h for h in _REASON_HATCHES if h not in (hh for _, hh in styles.values())),
+                         _REASON_HATCHES[len(styles) % len(_REASON_HATCHES)])
+        used_colours.append(colour_name)
+        styles[reason] = (OKABE_ITO[colour_name], hatch)
     return styles
+
+
+def reason_label(reason: str) -> str:
+    """A gap reason as words (``low_visibility`` -> ``low visibility``)."""
+    return str(reason).replace("_", " ")
 
 
 # --------------------------------------------------------------------------- helpers
@@ -291,7 +316,7 @@ def _summary_lines(result, labels: Sequence[str]) -> tuple[list[str], list[str]]
         items = list(counts.items())
         shown = items if len(items) <= 3 else items[:2]
         for reason, n in shown:
-            right.append(f"  {n} × {reason}")
+            right.append(f"  {n} × {reason_label(reason)}")
         if len(items) > len(shown):
             right.append(f"  {sum(n for _, n in items[2:])} × {len(items) - 2} other reasons")
     ambiguous = [lab for lab, a in zip(labels, gaps.get("ambiguous", [False] * n_gaps)) if _is_true(a)]
@@ -493,7 +518,7 @@ def render_report(result, *, clip: str | os.PathLike | None = None) -> ReportFig
     ax_count = fig.add_subplot(grid[1])
     time_axes = [ax_count]
     _style_axes(ax_count, PANEL_COUNT)
-    _shade_gaps(ax_count, spans, reasons, styles, alpha=0.28)
+    _shade_gaps(ax_count, spans, reasons, styles, alpha=GAP_TINT)
     fringes = _column(frames, "fringes")
     sigma = _column(frames, "fringes_sigma", default=0.0)
     blue = OKABE_ITO["blue"]
@@ -522,7 +547,7 @@ def render_report(result, *, clip: str | os.PathLike | None = None) -> ReportFig
                               label="carried across a gap"))
     for reason, (colour, hatch) in styles.items():
         handles.append(Patch(facecolor=colour, alpha=0.45, hatch=hatch, edgecolor=colour,
-                             label=f"gap: {reason}"))
+                             label=f"gap: {reason_label(reason)}"))
     # a sweep that counts up leaves the lower right empty, one that counts down the upper right
     finite = fringes[np.isfinite(fringes)]
     rising = finite.size < 2 or finite[-1] >= finite[0]
@@ -535,7 +560,7 @@ def render_report(result, *, clip: str | os.PathLike | None = None) -> ReportFig
     ax_vis = fig.add_subplot(grid[2], sharex=ax_count)
     time_axes.append(ax_vis)
     _style_axes(ax_vis, PANEL_VISIBILITY)
-    _shade_gaps(ax_vis, spans, reasons, styles, alpha=0.18)
+    _shade_gaps(ax_vis, spans, reasons, styles, alpha=GAP_TINT * 2 / 3)
     ax_vis.plot(t, _column(frames, "visibility"), color=blue, linewidth=1.0)
     threshold = summary.get("min_visibility")
     if threshold is None and isinstance(summary.get("visibility"), dict):
@@ -550,7 +575,7 @@ def render_report(result, *, clip: str | os.PathLike | None = None) -> ReportFig
     ax_res = fig.add_subplot(grid[3], sharex=ax_count)
     time_axes.append(ax_res)
     _style_axes(ax_res, PANEL_RESIDUAL)
-    _shade_gaps(ax_res, spans, reasons, styles, alpha=0.18)
+    _shade_gaps(ax_res, spans, reasons, styles, alpha=GAP_TINT * 2 / 3)
     ax_res.plot(t, _column(frames, "residual"), color=blue, linewidth=1.0)
     ax_res.set_ylabel("residual", fontsize=9)
     panels.append(PANEL_RESIDUAL)
@@ -558,7 +583,7 @@ def render_report(result, *, clip: str | os.PathLike | None = None) -> ReportFig
     ax_drift = fig.add_subplot(grid[4], sharex=ax_count)
     time_axes.append(ax_drift)
     _style_axes(ax_drift, PANEL_DRIFT + " (px, from the median centre)")
-    _shade_gaps(ax_drift, spans, reasons, styles, alpha=0.18)
+    _shade_gaps(ax_drift, spans, reasons, styles, alpha=GAP_TINT * 2 / 3)
     cx, cy = _column(frames, "center_x"), _column(frames, "center_y")
     ref = trusted & np.isfinite(cx) & np.isfinite(cy)
     if ref.any():
@@ -664,7 +689,7 @@ def _html_page(result, png: bytes, png_name: str, drawn: ReportFigure) -> str:
         rows.append(
             "<tr>" + "".join(f"<td>{esc(str(v))}</td>" for v in (
                 label, int(g["first_frame"]), int(g["last_frame"]),
-                f"{float(g['start_s']):.3f}", f"{float(g['stop_s']):.3f}", g["reason"], across,
+                f"{float(g['start_s']):.3f}", f"{float(g['stop_s']):.3f}", reason_label(g["reason"]), across,
                 g.get("method", ""), "yes" if _is_true(g.get("ambiguous", False)) else "no")) + "</tr>")
     gap_table = ("<p>No untrusted intervals.</p>" if not rows else
                  "<table><thead><tr><th>gap</th><th>first frame</th><th>last frame</th><th>start (s)</th>"

@@ -156,7 +156,10 @@ def test_gap_shading_has_the_reason_colour_at_the_gap_time(drawn):
     height = rgb.shape[0]
     ax = next(a for a in fig.axes if a.get_title(loc="left") == report.PANEL_COUNT)
     colour, _ = report.reason_styles(["dark"])["dark"]
-    target_hue = colorsys.rgb_to_hsv(*[int(colour[i:i + 2], 16) / 255 for i in (1, 3, 5)])[0]
+    target_hue, target_sat, _ = colorsys.rgb_to_hsv(*[int(colour[i:i + 2], 16) / 255 for i in (1, 3, 5)])
+    # a tint of opacity a over white has an HSV saturation of about a * S of the colour (exactly for
+    # colours with max channel 1); hatch lines of the full colour add to it
+    tint_sat = report.GAP_TINT * target_sat
     gap = result.gaps.iloc[0]
     y0, y1 = ax.get_ylim()
     for t_s, inside in ((0.5 * (gap["start_s"] + gap["stop_s"]), True), (0.3, False), (1.6, False)):
@@ -168,7 +171,7 @@ def test_gap_shading_has_the_reason_colour_at_the_gap_time(drawn):
         h, s, v = colorsys.rgb_to_hsv(*np.median(strip, axis=0))
         if inside:
             # hue within 10 degrees of the reason's colour (pale tint + hatch of the same colour)
-            assert s > 0.1 and min(abs(h - target_hue), 1 - abs(h - target_hue)) * 360 < 10
+            assert s > 0.5 * tint_sat and min(abs(h - target_hue), 1 - abs(h - target_hue)) * 360 < 10
         else:
             assert s < 0.05  # white background with grey grid lines: no tint outside the gap
 
@@ -269,3 +272,17 @@ def test_report_command_redraws_from_a_saved_result(clip, tmp_path, capsys):
     # a folder without a result is one line, not a traceback
     assert main(["report", str(tmp_path / "nothing")]) != 0
     assert capsys.readouterr().err.count("\n") == 1
+
+
+def test_reason_styles_are_fixed_for_the_gap_reasons():
+    gaps = pytest.importorskip("fringecount.gaps")
+    forward = report.reason_styles(gaps.REASONS)
+    backward = report.reason_styles(reversed(gaps.REASONS))
+    assert forward == backward  # the same reason looks the same in every report
+    assert len({c for c, _ in forward.values()}) == len(gaps.REASONS)
+    assert len({h for _, h in forward.values()}) == len(gaps.REASONS)
+    # saturated pixels are vermillion in the ROI picture; saturated gaps match
+    assert forward["saturated"][0] == report.OKABE_ITO["vermillion"]
+    # an unknown reason next to known ones takes a colour none of them uses
+    mixed = report.reason_styles(["saturated", "cosmic ray"])
+    assert mixed["cosmic ray"][0] not in {forward["saturated"][0]}
