@@ -348,3 +348,31 @@ def test_bad_run_options(tmp_path, kwargs, fragment):
     src = _archive(tmp_path / "src", {"a.avi": "ok 1.0"})
     with pytest.raises(InputError, match=fragment):
         B.run_batch(src, tmp_path / "out", analyse=scripted_analyse, **kwargs)
+
+
+# --------------------------------------------------------------------------- the command line
+
+@pytest.mark.parametrize("argv,fragment", [
+    (["{tmp}/nothing", "--out", "{tmp}/out"], "does not exist"),
+    (["{tmp}/m.csv", "--out", "{tmp}/out"], "unknown key 'fsp'"),
+    (["{tmp}/m.csv", "--out", "{tmp}/out", "--jobs", "0"], "--jobs must be at least 1"),
+    (["{tmp}/m.csv", "--out", "{tmp}/out", "--dask", "tcp://127.0.0.1:9", "--timeout", "5"], "local runs only"),
+    (["{tmp}/m.csv", "--out", "{tmp}/out", "--fps", "-1"], "fps must be"),
+])
+def test_cli_bad_invocation_exits_2_with_one_line(tmp_path, capsys, argv, fragment):
+    from fringecount.cli import main
+
+    _write(tmp_path / "m.csv", "path,fsp\na.avi,30\n")
+    code = main(["batch"] + [a.replace("{tmp}", str(tmp_path)) for a in argv])
+    out, err = capsys.readouterr()
+    assert code == 2 and out == ""
+    assert err.count("\n") == 1 and err.startswith("fringecount: error: ") and fragment in err
+    assert not (tmp_path / "out" / "batch.csv").exists()
+
+
+def test_cli_help_exits_0(capsys):
+    from fringecount.cli import main
+
+    with pytest.raises(SystemExit) as exc:
+        main(["batch", "--help"])
+    assert exc.value.code == 0 and "--dask" in capsys.readouterr().out
