@@ -366,7 +366,7 @@ def _wavelength_scan(args, air, inputs, notes):
                                            ng.budget, f"n = n_g + lambda dn/dlambda ({material.name})")
         return q, _fit_info(info, fit)
     start = _wavelength(args, args.start, "--start", "air", air, inputs, notes)
-    stop = _wavelength(args, args.stop, "--stop", "air", air, inputs, notes, required=thickness is not None)
+    stop = _wavelength(args, args.stop, "--stop", "air", air, inputs, notes, required=material is None)
     if thickness is None and material is None:
         raise InputError("wavelength scan: give --thickness (or --material to solve for the thickness)")
     if args.stop is None and material is None:
