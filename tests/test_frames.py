@@ -588,3 +588,26 @@ def test_cut_stack_gives_its_complete_frames(tmp_path, kind, caplog):
         assert "truncated" in caplog.text
         for f in clip:
             np.testing.assert_array_equal(f.image, frames[f.index])
+
+
+@pytest.mark.parametrize("fourcc, suffix", [("mp4v", ".mp4"), ("MJPG", ".avi")])
+def test_late_range_matches_a_plain_sequential_decode(tmp_path, fourcc, suffix):
+    n = 90
+    frames = np.stack([fringe_pattern(k, phase_step=0.37) for k in range(n)])
+    path = write_video(tmp_path / f"long{suffix}", frames, fourcc)
+    capture = cv2.VideoCapture(str(path))           # reference: OpenCV read front to back, no seeking
+    decoded = []
+    while True:
+        ok, image = capture.read()
+        if not ok:
+            break
+        decoded.append(cv2.cvtColor(image, cv2.COLOR_BGR2GRAY))
+    capture.release()
+    assert len(decoded) == n
+    with open_frames(path, first_frame=70, last_frame=88, step=6, channel="gray") as clip:
+        got = list(clip)
+        assert [f.index for f in got] == [70, 76, 82, 88]
+        for f in got:
+            np.testing.assert_array_equal(f.image, decoded[f.index])
+        for k in (3, 0, 2, 1):                       # random access seeks; it must land on the same frames
+            np.testing.assert_array_equal(clip.get_frame(k), decoded[int(clip.indices[k])])

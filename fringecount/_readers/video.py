@@ -28,6 +28,9 @@ _TIMEOUT_MS = 10_000
 _FORWARD_LIMIT = 64
 #: Frames kept by :meth:`VideoSource.get_frame`.
 _CACHE_SIZE = 8
+#: Codecs whose frames are all key frames: seeking to a frame number is exact for them.
+_INTRA_ONLY = {"mjpg", "avrn", "ffv1", "hfyu", "ffvh", "mpng", "png", "dib", "raw", "rgb", "y800", "grey",
+               "y8", "jpeg", "jpgl", "magy", "utvd", "ulrg", "ulra", "uly0", "uly2", "ulh0", "ulh2"}
 #: A container claiming more frames than this is not believed and the frames are counted.
 _MAX_PLAUSIBLE_FRAMES = 50_000_000
 
@@ -332,7 +335,12 @@ class VideoSource(FrameSource):
 
     # -- sequential decoding ------------------------------------------------------
     def __iter__(self) -> Iterator[Frame]:
-        """Decode the selected frames in order with one pass over the file (no per-frame seek)."""
+        """Decode the selected frames in order with one pass over the file (no per-frame seek).
+
+        Frames between selected ones are grabbed without colour conversion. For
+        intra-only codecs (MJPG, FFV1...) a range starting late is reached with
+        one seek; for others decoding starts at frame 0, so frame numbers stay exact.
+        """
         self._check_open()
         if len(self.indices) == 0:
             return
@@ -341,7 +349,10 @@ class VideoSource(FrameSource):
         try:
             first = int(self.indices[0])
             position = 0
-            if first > _FORWARD_LIMIT and cap.set(cv2.CAP_PROP_POS_FRAMES, first):
+            # One seek to the start of the range, only where seeking is exact; other codecs
+            # decode forward from frame 0 so the frame numbers cannot slip.
+            if first > _FORWARD_LIMIT and self.metadata["codec"].lower() in _INTRA_ONLY \
+                    and cap.set(cv2.CAP_PROP_POS_FRAMES, first):
                 position = first
             period = 1.0 / self.fps
             deviation = 0.0
