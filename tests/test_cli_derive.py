@@ -253,3 +253,42 @@ def test_help_exits_zero():
     with pytest.raises(SystemExit) as info:
         main(["derive", "gas-cell", "--help"])
     assert info.value.code == 0
+
+
+def test_gas_cell_from_pressure_log(capsys, tmp_path):
+    # Fill 0 -> 100 kPa at 20 degC (count from the full Ciddor equation, dry air): the slope
+    # refractivity at 101.325 kPa matches Ciddor within the compressibility bend (< 3e-4
+    # relative, REFERENCES §2.5).
+    t = np.arange(300) / 10.0
+    p_kpa = np.linspace(0, 100, t.size)
+    counts = 2 * 50e-3 * (air_index_ciddor(632.991e-9, 20.0, p_kpa * 1e3, 0.0, 450.0) - 1) / 632.991e-9
+    folder = _folder(tmp_path, t, counts)
+    log = tmp_path / "gauge.csv"
+    pd.DataFrame({"time_s": t, "p_kPa": p_kpa}).to_csv(log, index=False)
+    doc = run_json(capsys, "derive", "gas-cell", "--result", str(folder), "--log", str(log), "--log-unit", "kPa",
+                   "--length", "50mm", "--wavelength", "632.991nm", "--temperature", "20degC", "--pressure",
+                   "101.325kPa", "--humidity", "0%", "--co2", "450ppm")
+    q = doc["quantities"]
+    assert q["refractivity"]["value"] == pytest.approx(q["refractivity_ciddor"]["value"], rel=3e-4)
+    assert q["refractivity_per_pressure"]["unit"] == "1/Pa"
+
+
+def test_displacement_from_piezo_log(capsys, tmp_path):
+    # Linear piezo, 0.316 fringe/V, up then down with no hysteresis: sensitivity
+    # 0.316 * lambda / (2 n_air) m/V; hysteresis consistent with zero (noise 0.003 fringe).
+    rng = np.random.default_rng(9)
+    t = np.arange(400) / 20.0
+    volts = np.interp(t, [0, 10, 20], [0, 100, 0])
+    counts = 0.316 * volts + rng.normal(0, 0.003, t.size)
+    folder = _folder(tmp_path, t, counts, sigma=0.003)
+    log = tmp_path / "piezo.csv"
+    pd.DataFrame({"time_s": t, "voltage": volts}).to_csv(log, index=False)
+    doc = run_json(capsys, "derive", "displacement", "--result", str(folder), "--log", str(log),
+                   "--log-column", "voltage", "--wavelength", "632.991nm", "--temperature", "20degC",
+                   "--pressure", "101.325kPa", "--humidity", "0%", "--co2", "450ppm")
+    q = doc["quantities"]
+    per_fringe = 632.991e-9 / (2 * air_index_ciddor(632.991e-9, 20.0, 101325.0, 0.0, 450.0))
+    assert q["sensitivity"]["unit"] == "m/V"
+    assert abs(q["sensitivity"]["value"] - 0.316 * per_fringe) < 4 * q["sensitivity"]["sigma"]
+    # the largest gap of two noisy strokes: a few noise sigmas at most (0.003 fringe each)
+    assert q["hysteresis"]["value"] < 6 * 0.003 * np.sqrt(2) * per_fringe
