@@ -1006,14 +1006,12 @@ def run_batch(source: str | os.PathLike | list[BatchItem], out_dir: str | os.Pat
                 todo.append(item)
         logger.info("%d clip(s) to analyse, %d already done", len(todo), len(items) - len(todo))
         try:
-            if not todo:
-                pass
-            elif dask is not None:
+            if todo and dask is not None:
                 _run_dask(todo, out_dir, address=dask, force=force, connect_timeout_s=dask_timeout_s,
                           analyse=analyse, finish=finish)
-            elif jobs == 0:
+            elif todo and jobs == 0:
                 _run_inline(todo, out_dir, force=force, analyse=analyse, finish=finish)
-            else:
+            elif todo:
                 _run_local(todo, out_dir, jobs=min(jobs, len(todo)), force=force, analyse=analyse,
                            timeout_s=timeout_s, finish=finish)
         finally:

@@ -60,3 +60,12 @@ def test_unreachable_scheduler_is_an_input_error(tmp_path, monkeypatch):
         with pytest.raises(InputError, match="cannot reach the Dask scheduler"):
             B.run_batch(src, tmp_path / "out", dask="tcp://127.0.0.1:9", analyse=scripted_analyse,
                         dask_timeout_s=2.0)
+
+
+def test_missing_dask_is_a_clear_input_error(tmp_path, monkeypatch):
+    import sys
+
+    src = _archive(tmp_path / "src", {"a.avi": "ok 1.0"})
+    monkeypatch.setitem(sys.modules, "distributed", None)  # as if not installed
+    with pytest.raises(InputError, match="pip install 'fringecount\\[cluster\\]'"):
+        B.run_batch(src, tmp_path / "out", dask="tcp://127.0.0.1:9", analyse=scripted_analyse)
