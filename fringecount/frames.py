@@ -24,7 +24,7 @@ import os
 import pathlib
 from typing import Any
 
-from ._readers._base import Frame, FrameSource, check_fps_override
+from ._readers._base import Frame, FrameSource, UnreadableFrame, check_fps_override
 from ._readers.array import NpyArraySource
 from ._readers.images import IMAGE_SUFFIXES, ImageFolderSource
 from ._readers.tiff import TiffStackSource
@@ -32,7 +32,7 @@ from ._readers.video import VIDEO_SUFFIXES, VideoSource, looks_like
 from .errors import ClipError, SettingsError
 from .settings import CHANNELS
 
-__all__ = ["open_frames", "FrameSource", "Frame", "VIDEO_SUFFIXES", "IMAGE_SUFFIXES"]
+__all__ = ["open_frames", "FrameSource", "Frame", "UnreadableFrame", "VIDEO_SUFFIXES", "IMAGE_SUFFIXES"]
 
 logger = logging.getLogger(__name__)
 
@@ -78,7 +78,10 @@ def open_frames(path: str | os.PathLike, *, fps: float | None = None, channel: s
     FrameSource
         Finite sequence and context manager; ``len`` is the number of selected
         frames, iteration yields :class:`Frame` objects, ``get_frame(k)`` the
-        ``k``-th selected frame.
+        ``k``-th selected frame. Iteration skips a frame that does not decode
+        (logged, listed in ``metadata["unreadable"]``), so use ``Frame.index``
+        rather than counting; ``get_frame`` raises :class:`UnreadableFrame` (a
+        :class:`~fringecount.errors.ClipError`) for it.
 
     Raises
     ------

@@ -12,6 +12,7 @@ import abc
 import contextlib
 import logging
 import math
+import numbers
 import operator
 import pathlib
 from collections.abc import Iterator
@@ -88,12 +89,9 @@ def check_fps_override(fps: Any) -> float | None:
     """
     if fps is None:
         return None
-    if isinstance(fps, bool):
+    if isinstance(fps, bool) or not isinstance(fps, numbers.Real):
         raise SettingsError(f"fps must be a number of frames per second, got {fps!r}; pass e.g. --fps 30")
-    try:
-        value = float(fps)
-    except (TypeError, ValueError):
-        raise SettingsError(f"fps must be a number of frames per second, got {fps!r}; pass e.g. --fps 30") from None
+    value = float(fps)
     if not (math.isfinite(value) and 0 < value <= MAX_OVERRIDE_FPS):
         raise SettingsError(f"fps must be a positive number of frames per second up to {MAX_OVERRIDE_FPS:g}, "
                             f"got {fps!r}; pass e.g. --fps 30")

@@ -252,7 +252,8 @@ class VideoSource(FrameSource):
             n_frames = self._verified_length(reported)
             self.metadata.update(format=VIDEO_SUFFIXES.get(path.suffix.lower(), (path.suffix,))[0],
                                  codec=_fourcc(cap), backend=cap.getBackendName(),
-                                 container_fps=float(container_fps), n_frames_reported=reported,
+                                 container_fps=float(container_fps),
+                                 n_frames_reported=int(reported) if np.isfinite(reported) else None,
                                  timestamp_deviation_s=None)
             self._finish_open(n_frames_in_file=n_frames, fps=use_fps, fps_source=fps_source,
                               first_frame=first_frame, last_frame=last_frame, step=step, channel=channel)
