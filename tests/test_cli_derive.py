@@ -292,3 +292,16 @@ def test_displacement_from_piezo_log(capsys, tmp_path):
     assert abs(q["sensitivity"]["value"] - 0.316 * per_fringe) < 4 * q["sensitivity"]["sigma"]
     # the largest gap of two noisy strokes: a few noise sigmas at most (0.003 fringe each)
     assert q["hysteresis"]["value"] < 6 * 0.003 * np.sqrt(2) * per_fringe
+
+
+def test_one_way_drive_gives_null_hysteresis(capsys, tmp_path):
+    # only an up stroke: hysteresis cannot be computed and is reported as JSON null, not NaN
+    t = np.arange(100) / 10.0
+    folder = _folder(tmp_path, t, 0.3 * t * 10)
+    log = tmp_path / "piezo.csv"
+    pd.DataFrame({"time_s": t, "voltage": t * 10}).to_csv(log, index=False)
+    assert main(["derive", "displacement", "--result", str(folder), "--log", str(log), "--wavelength",
+                 "632.991nm", "--json"]) == 0
+    doc = json.loads(capsys.readouterr().out)  # strict JSON
+    assert doc["quantities"]["hysteresis"]["value"] is None
+    assert any("hysteresis not computed" in n for n in doc["notes"])

@@ -479,6 +479,19 @@ def _fmt(value: float, sigma: float) -> tuple[str, str]:
     return f"{value:.10g}", "0 (exact)"
 
 
+def _finite(obj):
+    """Replace NaN/inf by None so the output is strict JSON (null)."""
+    if isinstance(obj, float):
+        return obj if math.isfinite(obj) else None
+    if isinstance(obj, dict):
+        return {k: _finite(v) for k, v in obj.items()}
+    if isinstance(obj, (list, tuple)):
+        return [_finite(v) for v in obj]
+    if isinstance(obj, np.generic):
+        return _finite(obj.item())
+    return obj
+
+
 def emit(args, model: str, quantities: dict[str, Measurement], inputs: dict, notes: list[str],
          fit: dict | None = None) -> None:
     """Print the result: JSON on stdout with ``--json``, else a table with the uncertainty budget."""
@@ -487,7 +500,7 @@ def emit(args, model: str, quantities: dict[str, Measurement], inputs: dict, not
                "inputs": inputs, "notes": notes}
         if fit is not None:
             doc["fit"] = fit
-        print(json.dumps(doc, indent=2, allow_nan=True))
+        print(json.dumps(_finite(doc), indent=2, allow_nan=False))
         return
     out = [f"{model}"]
     for name, m in quantities.items():
