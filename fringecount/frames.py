@@ -98,8 +98,9 @@ def open_frames(path: str | os.PathLike, *, fps: float | None = None, channel: s
     Nothing reads the whole recording into memory. Times are
     ``times_s = indices / fps`` seconds from the first frame of the file.
     A video whose header promises more frames than decode is read up to the
-    last good frame (which is dropped as possibly incomplete), with a logged
-    warning and ``metadata["truncated"] = True``.
+    last good frame, with a logged warning; if the file was cut short
+    (``metadata["truncated"] = True``) that last frame is dropped too, as it may
+    be incomplete. TIFF and ``.npy`` stacks cut short give their complete frames.
     Log messages go to the ``fringecount.frames`` logger.
     """
     if not isinstance(path, (str, os.PathLike)):
@@ -118,34 +119,36 @@ def open_frames(path: str | os.PathLike, *, fps: float | None = None, channel: s
         raise ClipError(f"cannot access {path}: {exc.strerror or exc}; check the path and its permissions") from None
     if not exists:
         raise ClipError(f"no such file: {path}; check the path")
-    if is_dir:
-        source: FrameSource = ImageFolderSource(path, **options)
-    else:
-        suffix = path.suffix.lower()
-        if suffix not in VIDEO_SUFFIXES and suffix not in _TIFF_SUFFIXES and suffix not in IMAGE_SUFFIXES \
-                and suffix != ".npy":
-            raise ClipError(f"unknown file type {suffix or '(no extension)'!r} for {path.name}; "
-                            f"give {_known_types()}")
-        if size == 0:
-            raise ClipError(f"{path.name} is empty (0 bytes); check that the recording was saved completely")
-        try:
-            if suffix in VIDEO_SUFFIXES:
-                if not looks_like(path, suffix):
-                    raise ClipError(f"{path.name} is not in {VIDEO_SUFFIXES[suffix][0]} format (its first bytes "
-                                    "do not match); check the file or its extension")
-                source = VideoSource(path, **options)
-            elif suffix in _TIFF_SUFFIXES:
-                with open(path, "rb") as fh:
-                    if fh.read(4) not in _TIFF_MAGIC:
-                        raise ClipError(f"{path.name} is not in TIFF format (its first bytes do not match); "
-                                        "check the file or its extension")
-                source = TiffStackSource(path, **options)
-            elif suffix == ".npy":
-                source = NpyArraySource(path, **options)
-            else:
-                source = ImageFolderSource(path, **options)
-        except PermissionError as exc:
-            raise ClipError(f"cannot read {path}: {exc.strerror}; check its permissions") from None
+    try:
+        source = _open_reader(path, is_dir, size, options)
+    except (PermissionError, IsADirectoryError, NotADirectoryError) as exc:
+        raise ClipError(f"cannot read {path}: {exc.strerror or exc}; check the path and its permissions") from None
     logger.info("opened %s: %d frames %s %s at %g fps, channel %s", path.name, len(source), source.frame_shape,
                 source.dtype, source.fps, source.metadata.get("channel"))
     return source
+
+
+def _open_reader(path: pathlib.Path, is_dir: bool, size: int, options: dict[str, Any]) -> FrameSource:
+    """The reader for ``path``, chosen by what it is and its extension."""
+    if is_dir:
+        return ImageFolderSource(path, **options)
+    suffix = path.suffix.lower()
+    if suffix not in VIDEO_SUFFIXES and suffix not in _TIFF_SUFFIXES and suffix not in IMAGE_SUFFIXES \
+            and suffix != ".npy":
+        raise ClipError(f"unknown file type {suffix or '(no extension)'!r} for {path.name}; give {_known_types()}")
+    if size == 0:
+        raise ClipError(f"{path.name} is empty (0 bytes); check that the recording was saved completely")
+    if suffix in VIDEO_SUFFIXES:
+        if not looks_like(path, suffix):
+            raise ClipError(f"{path.name} is not in {VIDEO_SUFFIXES[suffix][0]} format (its first bytes "
+                            "do not match); check the file or its extension")
+        return VideoSource(path, **options)
+    if suffix in _TIFF_SUFFIXES:
+        with open(path, "rb") as fh:
+            if fh.read(4) not in _TIFF_MAGIC:
+                raise ClipError(f"{path.name} is not in TIFF format (its first bytes do not match); "
+                                "check the file or its extension")
+        return TiffStackSource(path, **options)
+    if suffix == ".npy":
+        return NpyArraySource(path, **options)
+    return ImageFolderSource(path, **options)

@@ -18,7 +18,7 @@ import numpy as np
 import pytest
 import tifffile
 
-from fringecount.errors import ClipError, InputError, SettingsError
+from fringecount.errors import ClipError, SettingsError
 from fringecount.frames import Frame, FrameSource, open_frames
 from fringecount.settings import CHANNELS
 
