@@ -45,13 +45,21 @@ class RadialModel:
     kappa: float
     envelope: np.ndarray
     order: int
+    envelope_x: np.ndarray | None = None
+
+    def envelope_at(self, x: np.ndarray) -> np.ndarray:
+        """Envelope on another bin grid (interpolated), normalised to mean 1."""
+        if self.envelope_x is None or (x.shape == self.envelope_x.shape and np.allclose(x, self.envelope_x)):
+            return self.envelope
+        e = np.interp(x, self.envelope_x, self.envelope)
+        return np.maximum(e / max(float(e.mean()), 1e-12), 1e-3)
 
     def h(self, x: np.ndarray) -> np.ndarray:
         c2, c3 = self.shape
         return x + c2 * x * x + c3 * x ** 3
 
     def with_shape(self, shape, order) -> "RadialModel":
-        return RadialModel(self.coord_scale, tuple(shape), self.kappa, self.envelope, order)
+        return RadialModel(self.coord_scale, tuple(shape), self.kappa, self.envelope, order, self.envelope_x)
 
 
 @dataclass
@@ -262,7 +270,7 @@ def estimate_model(profiles: np.ndarray, coord: np.ndarray, counts: np.ndarray, 
     order, shape, _, kap = best
     logger.debug("radial model: order %d shape %s kappa %.3f (candidates %s)", order, shape, kap,
                  [(c[0], c[2]) for c in candidates])
-    return RadialModel(scale, shape, kap, env, order)
+    return RadialModel(scale, shape, kap, env, order, x)
 
 
 def initial_kappa(profiles, coord, counts, model: RadialModel) -> np.ndarray:
@@ -339,7 +347,7 @@ def fit_phases(profiles: np.ndarray, coord: np.ndarray, counts: np.ndarray, mode
     h = model.h(x)
     bg = _design_bg(x)
     valid = np.isfinite(P)
-    env = model.envelope
+    env = model.envelope_at(x)
     w = counts / env
     kq = bg.shape[1]
     k0 = initial_kappa(P, coord, counts, model)

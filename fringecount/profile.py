@@ -79,7 +79,7 @@ def _box(frame_shape, crop) -> tuple[int, int, int, int]:
     return int(y0), int(min(y1, rows)), int(x0), int(min(x1, cols))
 
 
-def _finish(kind, box, coord_px, inside, n_bins, lo, hi, center, direction, inner, outer):
+def _finish(kind, box, coord_px, inside, n_bins, lo, hi, center, direction, inner, outer, keep_empty=False):
     edges = np.linspace(lo, hi, n_bins + 1)
     lab = np.full(coord_px.shape, n_bins, np.intp)
     idx = np.clip(((coord_px - lo) / (hi - lo) * n_bins).astype(np.intp), 0, n_bins - 1)
@@ -90,7 +90,7 @@ def _finish(kind, box, coord_px, inside, n_bins, lo, hi, center, direction, inne
         raise SettingsError("the region of interest holds too few pixels to make a profile; "
                             "widen --inner/--outer or --crop")
     centres = 0.5 * (edges[:-1] + edges[1:])
-    if not keep.all():  # drop empty bins and relabel
+    if not keep.all() and not keep_empty:  # drop empty bins and relabel
         new = np.full(n_bins + 1, int(keep.sum()), np.intp)
         new[np.flatnonzero(keep)] = np.arange(int(keep.sum()))
         lab = new[lab]
@@ -99,12 +99,15 @@ def _finish(kind, box, coord_px, inside, n_bins, lo, hi, center, direction, inne
 
 
 def ring_bins(frame_shape, center, *, inner_px: float = 0.0, outer_px: float | None = None,
-              crop=None, n_bins: int | None = None, min_pixels_per_bin: float = 12.0) -> ProfileBins:
+              crop=None, n_bins: int | None = None, min_pixels_per_bin: float = 12.0,
+              keep_empty: bool = False) -> ProfileBins:
     """Equal-area annular bins around ``center`` (x, y) between ``inner_px`` and ``outer_px``.
 
     ``outer_px=None`` reaches the farthest pixel of the (cropped) frame. With
     ``n_bins=None`` the number of bins is chosen so each holds about
-    ``min_pixels_per_bin`` pixels or more (at most 512 bins).
+    ``min_pixels_per_bin`` pixels or more (at most 512 bins). ``keep_empty`` keeps
+    bins without pixels (their profile value is NaN), so bins built around nearby
+    centres with the same ``n_bins`` and radii share one grid.
     """
     r0, r1, c0, c1 = _box(frame_shape, crop)
     cx, cy = center
@@ -122,7 +125,7 @@ def ring_bins(frame_shape, center, *, inner_px: float = 0.0, outer_px: float | N
     if n_bins is None:
         n_bins = int(np.clip(n_in / min_pixels_per_bin, 16, 512))
     return _finish("rings", (r0, r1, c0, c1), s, inside, n_bins, inner * inner, outer * outer,
-                   (float(cx), float(cy)), (0.0, 0.0), inner, outer)
+                   (float(cx), float(cy)), (0.0, 0.0), inner, outer, keep_empty)
 
 
 def line_bins(frame_shape, reference, direction, *, crop=None, outer_px: float | None = None,
@@ -175,4 +178,5 @@ def frame_profile(image: np.ndarray, bins: ProfileBins, saturation_level: float 
         sat = 1.0 - cnt.sum() / bins.counts.sum()
         return prof, float(sat)
     sums = np.bincount(bins.labels, weights=flat, minlength=n + 1)[:n]
-    return sums / bins.counts, 0.0
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return sums / bins.counts, 0.0

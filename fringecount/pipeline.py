@@ -1,0 +1,650 @@
+"""The counting pipeline: a recording in, a signed sub-fringe count with its gaps out.
+
+Stages: sample frames -> geometry (rings or straight) and centre -> one streaming
+pass of profiles (frames are decoded one at a time; only a few hundred floats
+per frame are kept) -> radial phase model and per-frame phase -> trust flags and
+gaps -> unwrapping within trusted stretches -> bridging each gap -> the total
+with its sigma budget.
+
+Sign convention: the count is positive when the on-axis interference order
+increases, i.e. rings are born at the centre and expand. For straight fringes
+the sign is not defined without a reference: it is positive when the fringes
+move along the carrier direction, taken to point right (or down, for horizontal
+fringes).
+"""
+
+from __future__ import annotations
+
+import logging
+import math
+import time
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Callable
+
+import numpy as np
+import pandas as pd
+
+from . import __version__
+from .bridge import bridge_gaps, read_wavelength_log
+from .center import CenterFit, fringe_images, locate_center, refine_center
+from .errors import InputError, NoFringesError, SettingsError
+from .frames import FrameSource, open_frames
+from .gaps import describe, find_gaps, flag_frames, unwrap_segments
+from .phase import RadialModel, estimate_model, fit_phases
+from .profile import ProfileBins, frame_profile, line_bins, ring_bins
+from .settings import CountSettings
+
+__all__ = ["count", "CountResult", "inspect_roi", "RoiInspection", "SIGN_CONVENTION"]
+
+logger = logging.getLogger(__name__)
+
+SIGN_CONVENTION = ("positive when the on-axis order increases (rings born at the centre and expanding); "
+                   "straight fringes: positive when fringes move along the carrier direction "
+                   "(pointing right, or down for horizontal fringes) - no absolute sign without a reference")
+
+FRAME_COLUMNS = ["frame", "time_s", "fringes", "fringes_sigma", "visibility", "trusted", "reason",
+                 "phase_wrapped", "brightness", "saturated_fraction", "residual", "center_x", "center_y"]
+
+
+@dataclass
+class CountResult:
+    """Result of :func:`count`: per-frame table, gap table, summary dict and the settings used."""
+
+    frames: pd.DataFrame
+    gaps: pd.DataFrame
+    summary: dict
+    settings: CountSettings
+    model: RadialModel | None = field(default=None, repr=False)
+
+    @property
+    def total_fringes(self) -> float:
+        return float(self.summary["total_fringes"])
+
+    @property
+    def total_fringes_sigma(self) -> float:
+        return float(self.summary["total_fringes_sigma"])
+
+
+@dataclass(frozen=True)
+class Geometry:
+    kind: str                      # "rings" or "straight"
+    center: CenterFit | None
+    direction: tuple[float, float]
+    reference: tuple[float, float]
+    contrast: float
+
+
+# ----------------------------------------------------------------------------- helpers
+def _as_float(img: np.ndarray) -> np.ndarray:
+    return np.asarray(img, dtype=np.float32)
+
+
+def _saturation_level(source: FrameSource, settings: CountSettings) -> float | None:
+    if settings.saturation_level is not None:
+        return float(settings.saturation_level)
+    if np.issubdtype(source.dtype, np.integer):
+        bits = int(source.metadata.get("bit_depth") or np.iinfo(source.dtype).bits)
+        return float(2 ** bits - 1)
+    return None
+
+
+def _sample_frames(source: FrameSource, k: int = 24) -> tuple[np.ndarray, np.ndarray]:
+    n = len(source)
+    idx = np.unique(np.linspace(0, n - 1, min(k, n)).astype(int))
+    imgs = []
+    for i in idx:
+        imgs.append(_as_float(source.get_frame(int(i))))
+    return idx, np.stack(imgs)
+
+
+def _crop_mask(shape, crop):
+    if crop is None:
+        return None
+    m = np.zeros(shape, bool)
+    x0, y0, x1, y1 = crop
+    m[y0:y1, x0:x1] = True
+    return m
+
+
+def _explained(fimgs: np.ndarray, bins: ProfileBins) -> float:
+    """Fraction of fringe-image variance kept by the 1-D profile (0..1)."""
+    num = den = 0.0
+    r0, r1, c0, c1 = bins.box
+    used = bins.labels < bins.n_bins
+    for f in fimgs:
+        box = f[r0:r1, c0:c1].ravel().astype(float)
+        vals = box[used] - box[used].mean()
+        lab = bins.labels[used]
+        sums = np.bincount(lab, weights=vals, minlength=bins.n_bins)
+        num += float((sums ** 2 / np.maximum(bins.counts, 1)).sum())
+        den += float((vals ** 2).sum())
+    return num / den if den > 0 else 0.0
+
+
+def _carrier_direction(fimgs: np.ndarray) -> tuple[tuple[float, float], float]:
+    """Carrier direction (unit x, y) and frequency (cycles/px) from the 2-D FFT peak (Takeda et al. 1982)."""
+    k, rows, cols = fimgs.shape
+    win = np.outer(np.hanning(rows), np.hanning(cols))
+    power = np.zeros((rows, cols))
+    for f in fimgs:
+        power += np.abs(np.fft.fft2((f - f.mean()) * win)) ** 2
+    fy = np.fft.fftfreq(rows)[:, None]
+    fx = np.fft.fftfreq(cols)[None, :]
+    rad = np.hypot(fx, fy)
+    power[rad < 1.5 / min(rows, cols)] = 0
+    iy, ix = np.unravel_index(int(np.argmax(power)), power.shape)
+    vx, vy = float(fx[0, ix]), float(fy[iy, 0])
+    if vx < -1e-12 or (abs(vx) <= 1e-12 and vy < 0):
+        vx, vy = -vx, -vy
+    nrm = math.hypot(vx, vy)
+    return (vx / nrm, vy / nrm), nrm
+
+
+def _find_geometry(samples: np.ndarray, settings: CountSettings) -> Geometry:
+    rows, cols = samples.shape[1:]
+    fimgs = fringe_images(samples)
+    mask = _crop_mask((rows, cols), settings.crop)
+    if mask is not None:
+        fimgs = np.where(mask[None], fimgs, 0.0).astype(np.float32)
+    want = settings.geometry
+    ring = None
+    if want in ("auto", "rings"):
+        if settings.center is not None:
+            cx, cy = settings.center
+            ring = CenterFit(float(cx), float(cy), 0.0, 0.0, float("nan"), "given", 0)
+        else:
+            ring = locate_center(fimgs, mask=mask)
+            if not ring and want == "rings":
+                raise NoFringesError(f"no ring pattern found ({ring.reason}); check the clip, "
+                                     "give --center X,Y or try --geometry straight")
+    ring_contrast = 0.0
+    if ring:
+        try:
+            rb = ring_bins((rows, cols), ring.xy, inner_px=settings.inner_radius_px,
+                           outer_px=settings.outer_radius_px, crop=settings.crop)
+            ring_contrast = _explained(fimgs, rb)
+        except SettingsError:
+            if want == "rings" or settings.center is not None:
+                raise
+            ring = None
+    if want == "rings" and ring:
+        return Geometry("rings", ring, (0.0, 0.0), ring.xy, ring_contrast)
+    direction, freq = _carrier_direction(fimgs)
+    ref = ((cols - 1) / 2.0, (rows - 1) / 2.0)
+    if settings.crop is not None:
+        x0, y0, x1, y1 = settings.crop
+        ref = ((x0 + min(x1, cols) - 1) / 2.0, (y0 + min(y1, rows) - 1) / 2.0)
+    lb = line_bins((rows, cols), ref, direction, crop=settings.crop, outer_px=settings.outer_radius_px)
+    straight_contrast = _explained(fimgs, lb)
+    logger.debug("geometry: ring contrast %.3f, straight contrast %.3f", ring_contrast, straight_contrast)
+    if want == "straight" or (straight_contrast > ring_contrast + 0.05) or not ring:
+        if straight_contrast < 0.02:
+            raise NoFringesError("no fringes found: neither rings nor straight fringes stand out of the noise; "
+                                 "check the clip (light, focus) or the --crop/--inner/--outer region")
+        return Geometry("straight", None, direction, ref, straight_contrast)
+    if ring_contrast < 0.02:
+        raise NoFringesError("no fringes found in the region of interest; check the clip or widen the ROI")
+    return Geometry("rings", ring, (0.0, 0.0), ring.xy, ring_contrast)
+
+
+def _bins_for(geom: Geometry, shape, settings: CountSettings, center=None, like: ProfileBins | None = None
+              ) -> ProfileBins:
+    if geom.kind == "rings":
+        if like is not None:  # same grid as ``like`` (moved or shifted centre)
+            return ring_bins(shape, center, inner_px=like.inner_px, outer_px=like.outer_px, crop=settings.crop,
+                             n_bins=like.n_bins, keep_empty=True)
+        return ring_bins(shape, center or geom.center.xy, inner_px=settings.inner_radius_px,
+                         outer_px=settings.outer_radius_px, crop=settings.crop, keep_empty=True)
+    return line_bins(shape, center or geom.reference, geom.direction, crop=settings.crop,
+                     outer_px=settings.outer_radius_px)
+
+
+def _open(clip, settings: CountSettings) -> tuple[FrameSource, bool]:
+    if isinstance(clip, FrameSource):
+        return clip, False
+    src = open_frames(clip, fps=settings.fps, channel=settings.channel, first_frame=settings.first_frame,
+                      last_frame=settings.last_frame, step=settings.step)
+    return src, True
+
+
+def _check_roi(geom: Geometry, shape, settings: CountSettings) -> None:
+    rows, cols = shape
+    if settings.crop is not None:
+        x0, y0, x1, y1 = settings.crop
+        if x0 >= cols or y0 >= rows:
+            raise SettingsError(f"crop {settings.crop} lies outside the {cols}x{rows} frame; choose --crop inside it")
+
+
+# ----------------------------------------------------------------------------- streaming pass
+class _ProfileStream:
+    """Accumulates profiles for the nominal centre and two shifted centres (centre sensitivity)."""
+
+    def __init__(self, n: int, bins: list[ProfileBins]):
+        self.bins = bins
+        self.prof = [np.full((n, b.n_bins), np.nan, np.float32) for b in bins]
+        self.sat = np.zeros(n)
+        self.ok = np.zeros(n, bool)
+
+    def add(self, k: int, img: np.ndarray, level: float | None) -> None:
+        for j, b in enumerate(self.bins):
+            p, s = frame_profile(img, b, level)
+            self.prof[j][k] = p
+            if j == 0:
+                self.sat[k] = s
+        self.ok[k] = True
+
+
+def _stream(source: FrameSource, bins_by_block: Callable[[int], list[ProfileBins]], level,
+            progress, block_len: int, block_samples: list | None):
+    n = len(source)
+    stream = None
+    current_block = -1
+    frames = np.zeros(n, int)
+    times = np.zeros(n)
+    got = 0
+    for k, fr in enumerate(source):
+        if k >= n:
+            break
+        blk = k // block_len
+        if blk != current_block:
+            current_block = blk
+            bl = bins_by_block(blk)
+            if stream is None:
+                stream = _ProfileStream(n, bl)
+            else:
+                stream.bins = bl
+        img = fr.image
+        stream.add(k, img, level)
+        frames[k] = fr.index
+        times[k] = fr.time_s
+        if block_samples is not None:
+            pos = k % block_len
+            if pos % max(1, block_len // 6) == 0 and len(block_samples[blk]) < 6:
+                block_samples[blk].append(_as_float(img))
+        got = k + 1
+        if progress is not None:
+            progress(k + 1, n)
+    if got == 0:
+        raise InputError(f"no frame of {source.path} could be decoded; check the file (it may be corrupt)")
+    if got < n:
+        logger.warning("only %d of %d frames could be decoded; the clip looks truncated", got, n)
+    return stream, frames[:got], times[:got], got
+
+
+def _drift_track(block_samples, geom: Geometry, settings: CountSettings, shape) -> tuple[np.ndarray, dict]:
+    """Per-block centre estimates and the decision whether the centre drifted."""
+    est = []
+    mask = _crop_mask(shape, settings.crop)
+    for samples in block_samples:
+        if len(samples) < 3:
+            est.append((np.nan, np.nan, np.nan, np.nan))
+            continue
+        f = fringe_images(np.stack(samples))
+        r = refine_center(f[:, :, :], geom.center.xy, mask=mask, step_px=0.5,
+                          inner_px=settings.inner_radius_px, outer_px=settings.outer_radius_px)
+        est.append((r.x, r.y, r.x_err, r.y_err) if r else (np.nan, np.nan, np.nan, np.nan))
+    est = np.asarray(est, float)
+    ok = np.isfinite(est).all(axis=1)
+    info = {"blocks": int(len(est)), "drift_accepted": False, "max_drift_px": 0.0, "chi2_per_dof": float("nan")}
+    if ok.sum() < 3:
+        return est, info
+    e = est[ok]
+    # scatter of block estimates about their mean, against the estimate's own scatter
+    # (successive differences measure the noise even when there is a trend)
+    noise = np.sqrt(0.5 * np.mean(np.diff(e[:, :2], axis=0) ** 2, axis=0)) + 1e-3
+    noise = np.maximum(noise, np.median(e[:, 2:], axis=0))
+    dev = e[:, :2] - np.median(e[:, :2], axis=0)
+    chi2 = float(((dev / noise) ** 2).sum() / max(2 * len(e) - 2, 1))
+    max_drift = float(np.abs(dev).max())
+    info.update(chi2_per_dof=chi2, max_drift_px=max_drift, block_noise_px=[float(v) for v in noise])
+    info["drift_accepted"] = bool(chi2 > 4.0 and max_drift > 0.3)
+    return est, info
+
+
+# ----------------------------------------------------------------------------- main entry
+def count(clip, settings: CountSettings | None = None, *,
+          progress: Callable[[int, int], None] | None = None) -> CountResult:
+    """Count the fringes in a recording.
+
+    Parameters
+    ----------
+    clip : path or FrameSource
+        The recording (video, TIFF stack, image folder, .npy).
+    settings : CountSettings, optional
+        Analysis settings (ROI, timing, thresholds, wavelength log).
+    progress : callable(done, total), optional
+        Called after each decoded frame (the CLI draws a progress bar with it).
+
+    Returns
+    -------
+    CountResult
+        ``frames`` (one row per analysed frame: frame, time_s, fringes (cumulative,
+        signed), fringes_sigma, visibility, trusted, reason, ...), ``gaps`` (one row
+        per untrusted interval with the count across it and its sigma) and
+        ``summary`` (the JSON summary: total_fringes, total_fringes_sigma, frames,
+        fps, gaps, centre, geometry, sigma budget, settings, version).
+
+    Notes
+    -----
+    Units: pixels and frames inside; times in seconds. The count sign follows
+    :data:`SIGN_CONVENTION`.
+    """
+    settings = settings or CountSettings()
+    t_start = time.perf_counter()
+    source, owned = _open(clip, settings)
+    try:
+        return _count_open(source, settings, progress, t_start)
+    finally:
+        if owned:
+            source.close()
+
+
+def _count_open(source: FrameSource, settings: CountSettings, progress, t_start) -> CountResult:
+    n = len(source)
+    if n < 4:
+        raise InputError(f"{source.path} has {n} frame(s) in the selected range; a count needs at least 4 "
+                         "(check --frames)")
+    shape = tuple(source.frame_shape)
+    level = _saturation_level(source, settings)
+    wlog = read_wavelength_log(settings.wavelength_log) if settings.wavelength_log else None
+    _, samples = _sample_frames(source)
+    geom = _find_geometry(samples, settings)
+    _check_roi(geom, shape, settings)
+    logger.info("geometry %s, centre/reference %s", geom.kind, geom.reference)
+
+    delta = 0.5  # px: centre shift used to measure the count's sensitivity to the centre
+    base = geom.center.xy if geom.kind == "rings" else geom.reference
+
+    nominal = _bins_for(geom, shape, settings, base)
+
+    def make_bins(center):
+        if geom.kind != "rings":
+            return [nominal]
+        return [_bins_for(geom, shape, settings, center, like=nominal),
+                _bins_for(geom, shape, settings, (center[0] + delta, center[1]), like=nominal),
+                _bins_for(geom, shape, settings, (center[0], center[1] + delta), like=nominal)]
+
+    fixed = make_bins(base)
+    block_len = max(48, int(math.ceil(n / 16)))
+    n_blocks = int(math.ceil(n / block_len))
+    track_drift = geom.kind == "rings" and settings.track_center and settings.center is None
+    block_samples = [[] for _ in range(n_blocks)] if track_drift else None
+    stream, frames, times, got = _stream(source, lambda b: fixed, level, progress, block_len, block_samples)
+    drift_info: dict = {"drift_accepted": False}
+    centers = np.tile(np.asarray(base, float), (got, 1))
+    if track_drift:
+        est, drift_info = _drift_track(block_samples, geom, settings, shape)
+        if drift_info["drift_accepted"]:
+            logger.info("ring centre drifts by up to %.2f px: second pass with a moving centre",
+                        drift_info["max_drift_px"])
+            ok = np.isfinite(est[:, 0])
+            bc = np.arange(n_blocks)[ok] * block_len + block_len / 2
+            cx = np.interp(np.arange(n_blocks) * block_len + block_len / 2, bc, est[ok, 0])
+            cy = np.interp(np.arange(n_blocks) * block_len + block_len / 2, bc, est[ok, 1])
+            cache = {b: make_bins((float(cx[b]), float(cy[b]))) for b in range(n_blocks)}
+            stream2, frames, times, got = _stream(source, lambda b: cache[b], level, None, block_len, None)
+            stream = stream2
+            centers = np.column_stack([cx[np.arange(got) // block_len], cy[np.arange(got) // block_len]])
+    nb0 = stream.bins[0]
+    profiles = stream.prof[0][:got].astype(float)
+    usable = np.isfinite(profiles).sum(axis=1) >= max(8, nb0.n_bins // 4)
+    if usable.sum() < 4:
+        raise NoFringesError("fewer than 4 frames have a usable profile (too dark or saturated); "
+                             "check exposure, --saturation and the ROI")
+    try:
+        model = estimate_model(profiles, nb0.coord, nb0.counts,
+                               sample=None if usable.all() else None)
+    except ValueError:
+        raise NoFringesError("no fringe frequency found in the region of interest; "
+                             "check the clip or tune the ROI with 'fringecount roi'") from None
+    fits = fit_phases(profiles, nb0.coord, nb0.counts, model)
+
+    table = pd.DataFrame({
+        "frame": frames, "time_s": times, "phase_wrapped": fits.phase, "phase": fits.phase,
+        "phase_sigma": fits.phase_sigma, "visibility": fits.visibility, "brightness": fits.brightness,
+        "saturated_fraction": stream.sat[:got], "valid_fraction": fits.valid_fraction,
+        "residual": fits.residual, "kappa": fits.kappa,
+        "center_x": centers[:, 0], "center_y": centers[:, 1],
+    })
+    table = flag_frames(table, min_visibility=settings.min_visibility,
+                        max_step_fringes=settings.max_step_fringes)
+    if not table["trusted"].any():
+        raise NoFringesError("no frame has fringes that can be followed (all dark, washed out or saturated); "
+                             "check the recording and the ROI")
+    segment, gaps = find_gaps(table)
+    fr_seg = unwrap_segments(fits.phase, segment)
+    sig_fr = fits.phase_sigma / (2 * np.pi)
+    track = pd.DataFrame({"frame": frames, "time_s": times, "segment": segment,
+                          "fringes": fr_seg, "fringes_sigma": sig_fr})
+    bridged = bridge_gaps(track, gaps, wavelength_log=wlog, log_offset_s=settings.log_offset_s,
+                          air_wavelengths=settings.log_air_wavelengths,
+                          hop_range_fringes=settings.hop_range_fringes)
+
+    cumulative, total, budget = _assemble(track, bridged, sig_fr)
+    # systematic terms: centre sensitivity and radial-model order
+    sys_center = 0.0
+    if geom.kind == "rings" and geom.center is not None and len(stream.prof) == 3:
+        for j, err in ((1, geom.center.x_err), (2, geom.center.y_err)):
+            alt = fit_phases(stream.prof[j][:got].astype(float), stream.bins[j].coord, stream.bins[j].counts, model)
+            d = _endpoint_change(alt.phase, fits.phase, segment)
+            sys_center += (d * (err / delta)) ** 2
+        sys_center = math.sqrt(sys_center)
+    sys_model = 0.0
+    if model.order > 1:
+        lower = model.with_shape((model.shape[0], 0.0) if model.order == 3 else (0.0, 0.0), model.order - 1)
+        alt = fit_phases(profiles, nb0.coord, nb0.counts, lower)
+        sys_model = abs(_endpoint_change(alt.phase, fits.phase, segment))
+    budget["center"] = sys_center
+    budget["model"] = sys_model
+    sigma = math.sqrt(sum(v ** 2 for v in budget.values()))
+
+    frames_out = table.assign(fringes=cumulative)
+    frames_out["fringes_sigma"] = np.sqrt(sig_fr ** 2 + sig_fr[0] ** 2)
+    frames_out = frames_out[FRAME_COLUMNS + [c for c in frames_out.columns if c.startswith("flag_")]
+                            + ["step_fringes", "kappa"]]
+    gap_cols = ["first_frame", "last_frame", "start_s", "stop_s", "reason", "fringes_across",
+                "fringes_across_sigma", "method", "ambiguous", "p_chosen", "n_frames"]
+    extra = [c for c in bridged.columns if c not in gap_cols and c not in ("segment_before", "segment_after")]
+    gaps_out = bridged[gap_cols + extra].copy()
+    ambiguous = bool(gaps_out["ambiguous"].any()) if len(gaps_out) else False
+    if not ambiguous and sigma > 1.0 / 6.0:
+        ambiguous = True
+    fps = float(source.fps)
+    vis = frames_out.loc[frames_out["trusted"], "visibility"]
+    summary = {
+        "total_fringes": float(total),
+        "total_fringes_sigma": float(sigma),
+        "ambiguous": ambiguous,
+        "frames": int(got),
+        "fps": fps,
+        "first_frame": int(frames[0]),
+        "last_frame": int(frames[-1]),
+        "duration_s": float(times[-1] - times[0]),
+        "trusted_fraction": float(frames_out["trusted"].mean()),
+        "gaps": [_gap_json(row) for row in gaps_out.to_dict("records")],
+        "geometry": geom.kind,
+        "center": ({"x": geom.center.x, "y": geom.center.y, "x_err": geom.center.x_err,
+                    "y_err": geom.center.y_err, "method": geom.center.method,
+                    "drift": {k: v for k, v in drift_info.items()}}
+                   if geom.center is not None else None),
+        "carrier_direction": list(geom.direction) if geom.kind == "straight" else None,
+        "visibility": {"median": _f(vis.median()), "p10": _f(vis.quantile(0.1)), "min": _f(vis.min()),
+                       "floor": _f(table.attrs.get("visibility_floor"))},
+        "sigma_budget": {k: float(v) for k, v in budget.items()},
+        "radial_model": {"order": model.order, "shape": list(model.shape), "kappa": model.kappa,
+                         "coord_scale": model.coord_scale, "n_bins": int(nb0.n_bins)},
+        "roi": {"inner_px": nb0.inner_px, "outer_px": nb0.outer_px, "crop": list(settings.crop) if settings.crop else None,
+                "saturation_level": level},
+        "sign_convention": SIGN_CONVENTION,
+        "clip": str(source.path),
+        "clip_metadata": {k: v for k, v in source.metadata.items() if isinstance(v, (str, int, float, bool))},
+        "version": __version__,
+        "settings": settings.to_dict(),
+        "elapsed_s": round(time.perf_counter() - t_start, 3),
+    }
+    return CountResult(frames_out.reset_index(drop=True), gaps_out.reset_index(drop=True), summary, settings, model)
+
+
+def _f(v) -> float | None:
+    try:
+        v = float(v)
+    except (TypeError, ValueError):
+        return None
+    return v if math.isfinite(v) else None
+
+
+def _gap_json(row: dict) -> dict:
+    out = {}
+    for k, v in row.items():
+        if isinstance(v, (np.integer,)):
+            v = int(v)
+        elif isinstance(v, (np.floating, float)):
+            v = _f(v)
+        elif isinstance(v, np.bool_):
+            v = bool(v)
+        out[k] = v
+    out["description"] = describe(row.get("reason", ""))
+    return out
+
+
+def _endpoint_change(alt_phase: np.ndarray, nom_phase: np.ndarray, segment: np.ndarray) -> float:
+    """Change of the total count (fringes) if ``alt_phase`` replaced ``nom_phase`` (same unwrapping)."""
+    d = (alt_phase - nom_phase + np.pi) % (2 * np.pi) - np.pi
+    good = np.flatnonzero(segment >= 0)
+    if good.size < 2:
+        return 0.0
+    return float((d[good[-1]] - d[good[0]]) / (2 * np.pi))
+
+
+def _assemble(track: pd.DataFrame, bridged: pd.DataFrame, sig_fr: np.ndarray):
+    """Cumulative count per frame, total, and the noise/bridging sigma budget."""
+    seg = track["segment"].to_numpy(int)
+    fr = track["fringes"].to_numpy(float)
+    frames = track["frame"].to_numpy(int)
+    n = len(track)
+    cum = np.full(n, np.nan)
+    offset = 0.0
+    pos = {int(f): i for i, f in enumerate(frames)}
+    bridging_var = 0.0
+    gaps_by_before = {int(r["segment_before"]): r for r in bridged.to_dict("records")}
+    start_gap = gaps_by_before.get(-1)
+    if start_gap is not None:
+        offset = float(start_gap["fringes_across"])
+        bridging_var += float(start_gap["fringes_across_sigma"]) ** 2
+    segs = np.unique(seg[seg >= 0])
+    last_val = None
+    for s in segs:
+        idx = np.flatnonzero(seg == s)
+        if last_val is not None:
+            g = gaps_by_before[int(s) - 1]
+            across = float(g["fringes_across"])
+            # noise of the two end phases is counted once, at the clip ends
+            ends = math.hypot(sig_fr[idx[0]], sig_fr[pos_prev_end])
+            bridging_var += max(float(g["fringes_across_sigma"]) ** 2 - ends ** 2, 0.0)
+            offset = last_val + across - fr[idx[0]]
+        else:
+            offset = offset - fr[idx[0]]
+        cum[idx] = fr[idx] + offset
+        last_val = cum[idx[-1]]
+        pos_prev_end = idx[-1]
+    end_gap = [r for r in bridged.to_dict("records") if int(r["segment_after"]) == -1 and int(r["segment_before"]) >= 0]
+    total_end = last_val
+    if end_gap:
+        g = end_gap[0]
+        total_end = last_val + float(g["fringes_across"])
+        bridging_var += float(g["fringes_across_sigma"]) ** 2
+    # fill gap frames by linear interpolation of the cumulative count
+    idx = np.arange(n)
+    ok = np.isfinite(cum)
+    cum_filled = np.interp(idx, idx[ok], cum[ok])
+    if not ok[-1]:
+        tail = ~ok & (idx > idx[ok][-1])
+        cum_filled[tail] = np.linspace(cum[ok][-1], total_end, tail.sum() + 1)[1:]
+    if not ok[0]:
+        head = ~ok & (idx < idx[ok][0])
+        cum_filled[head] = np.linspace(0.0, cum[ok][0], head.sum() + 1)[:-1]
+    first_ok, last_ok = idx[ok][0], idx[ok][-1]
+    noise = math.hypot(sig_fr[first_ok], sig_fr[last_ok])
+    total = float(total_end)
+    budget = {"phase_noise": noise, "bridging": math.sqrt(bridging_var)}
+    return cum_filled, total, budget
+
+
+# ----------------------------------------------------------------------------- ROI inspection
+@dataclass(frozen=True, eq=False)
+class RoiInspection:
+    """What the analysis sees in one frame: centre, usable radii, ring spacing, visibility, masks."""
+
+    center: tuple[float, float]
+    center_sigma: tuple[float, float]
+    geometry: str
+    radius_range_px: tuple[float, float]
+    ring_spacing_px: float
+    visibility: float
+    saturated_fraction: float
+    suggested: dict
+    frame_index: int
+    image: np.ndarray
+    profile_r_px: np.ndarray
+    profile_values: np.ndarray
+    mask: np.ndarray
+    saturated: np.ndarray
+    roi: dict
+
+
+def inspect_roi(clip, settings: CountSettings | None = None, *, frame: int | None = None) -> RoiInspection:
+    """Centre, usable radius range, ring spacing, visibility and a suggested ROI for one frame.
+
+    The centre comes from frames spread over the clip (as :func:`count` finds it);
+    ``frame`` (index within the selected range, default the middle) is the one shown.
+    """
+    settings = settings or CountSettings()
+    source, owned = _open(clip, settings)
+    try:
+        n = len(source)
+        k = n // 2 if frame is None else int(frame)
+        if not 0 <= k < n:
+            raise SettingsError(f"--frame {k} is outside the clip (0..{n - 1})")
+        shape = tuple(source.frame_shape)
+        _, samples = _sample_frames(source)
+        geom = _find_geometry(samples, settings)
+        img = source.get_frame(k)
+        level = _saturation_level(source, settings)
+        bins = _bins_for(geom, shape, settings)
+        prof, sat_frac = frame_profile(img, bins, level)
+        many = np.stack([frame_profile(s, bins, level)[0] for s in samples])
+        model = estimate_model(many, bins.coord, bins.counts)
+        fits = fit_phases(prof[None, :], bins.coord, bins.counts, model)
+        if geom.kind == "rings":
+            r = np.sqrt(bins.coord)
+            # ring spacing near the outer edge: one fringe = 2 pi / (kappa h'(x)) in x, times ds/dr
+            x_out = 1.0
+            dh = 1 + 2 * model.shape[0] * x_out + 3 * model.shape[1] * x_out ** 2
+            ds = 2 * np.pi / (model.kappa * dh) * model.coord_scale
+            spacing = float(ds / (2 * r.max()))
+            cen = geom.center.xy
+            csig = (geom.center.x_err, geom.center.y_err)
+        else:
+            r = bins.coord
+            spacing = float(2 * np.pi / model.kappa * model.coord_scale)
+            cen = geom.reference
+            csig = (float("nan"), float("nan"))
+        # usable radius range: bins whose fringe amplitude stays above a third of the typical
+        env = model.envelope
+        usable = env > 0.25 * float(np.median(env))
+        rr = (float(r[usable].min()), float(r[usable].max())) if usable.any() else (float(r.min()), float(r.max()))
+        suggested = {"center": [round(cen[0], 2), round(cen[1], 2)], "inner": round(max(rr[0], 0.0), 1),
+                     "outer": round(rr[1], 1), "crop": list(settings.crop) if settings.crop else None}
+        sat = (np.asarray(img) >= level) if level is not None else np.zeros(shape, bool)
+        return RoiInspection(center=(float(cen[0]), float(cen[1])), center_sigma=(float(csig[0]), float(csig[1])),
+                             geometry=geom.kind, radius_range_px=rr, ring_spacing_px=spacing,
+                             visibility=float(fits.visibility[0]), saturated_fraction=float(sat_frac),
+                             suggested=suggested, frame_index=int(source.indices[k]),
+                             image=np.asarray(img), profile_r_px=np.asarray(r, float),
+                             profile_values=np.asarray(prof, float), mask=bins.mask(shape), saturated=sat,
+                             roi={"inner": settings.inner_radius_px, "outer": settings.outer_radius_px,
+                                  "crop": list(settings.crop) if settings.crop else None})
+    finally:
+        if owned:
+            source.close()
