@@ -36,22 +36,18 @@ from ..models import (
     align_log,
     budget_table,
     derive_displacement,
-    derive_expansion,
     derive_expansion_slope,
-    derive_gas_cell,
     derive_gas_cell_slope,
-    derive_plate_rotation,
-    derive_wavelength_scan,
     fit_drive,
     fit_plate_rotation,
-    get_material,
     group_to_phase_index,
-    parse_coefficients,
+    propagate,
     read_count_result,
     read_drive_log,
     trusted_series,
     weighted_line_fit,
 )
+from ..models.by_name import MODEL_PARAMETERS, ParamReader, derive_from_params, gas_notes, gas_reference
 from ..units import Uncertain, convert_value, parse_number, parse_quantity
 from . import add_output_arguments
 
@@ -195,57 +191,22 @@ def _no_model(args) -> int:
 
 
 # ---------------------------------------------------------------- inputs
-class _Inputs:
-    """Collects the parsed inputs for the ``inputs`` section of the output."""
-
-    def __init__(self) -> None:
-        self.items: dict[str, dict] = {}
-
-    def add(self, key: str, q: Uncertain | None, unit: str, text: str | None = None) -> Uncertain | None:
-        if q is not None:
-            self.items[key] = {"value": q.value, "sigma": q.sigma, "unit": unit}
-            if text is not None:
-                self.items[key]["text"] = text
-        return q
+def _params(args: argparse.Namespace) -> dict:
+    """The model's parameters from the parsed options (text, as a manifest would give them)."""
+    return {name: getattr(args, name) for name in MODEL_PARAMETERS[args.model] if hasattr(args, name)}
 
 
-def _req(args, attr: str, kind: str, flag: str, unit: str, inputs: _Inputs) -> Uncertain:
-    text = getattr(args, attr, None)
-    if text is None:
-        raise InputError(f"{flag} is required for 'derive {args.model}'; e.g. {flag} "
-                         f"{ {'length': '10mm', 'wavelength': '632.8nm', 'angle': '10deg', 'temperature_difference': '10K'}.get(kind, '1')}")
-    return inputs.add(flag.lstrip("-").replace("-", "_"), parse_quantity(text, kind, name=flag), unit, text)
-
-
-def _wavelength(args, text: str | None, flag: str, native: str, air: AirConditions, inputs: _Inputs,
-                notes: list[str], required: bool = True) -> Uncertain | None:
-    if text is None:
-        if required:
-            raise InputError(f"{flag} is required for 'derive {args.model}'; e.g. {flag} 632.8nm")
-        return None
-    q = parse_quantity(text, "wavelength", name=flag)
-    inputs.add(flag.lstrip("-").replace("-", "_"), q, "m", text)
-    given = args.wavelength_in
-    if given == native:
-        return q
-    n_air = air_index_ciddor(q.value if given == "vacuum" else q.value * 1.00027,
-                             air.temperature_K.value - 273.15, air.pressure_Pa.value,
-                             air.humidity_percent.value, air.co2_ppm.value)
-    factor = 1 / n_air if given == "vacuum" else n_air
-    notes.append(f"{flag} converted from {given} to {native} wavelength with n_air = {n_air:.9f} (Ciddor)")
-    if air.note() and air.note() not in notes:
-        notes.append(air.note())
-    return Uncertain(q.value * factor, q.sigma * factor)
-
-
-def _count(args, inputs: _Inputs, notes: list[str]):
+def _count(args, reader: ParamReader):
     """(fringes Uncertain or None, CountRecord or None). Exactly one of --fringes/--result."""
+    notes = reader.notes
     if (args.fringes is None) == (args.result is None):
         raise InputError("give either --fringes N or --result DIR (a count result folder), not both or neither")
     if args.log and args.result is None:
         raise InputError("--log needs --result DIR (the count result folder the log belongs to)")
     if args.fringes is not None:
-        return inputs.add("fringes", parse_number(args.fringes, name="--fringes"), "", args.fringes), None
+        q = parse_number(args.fringes, name="--fringes")
+        reader.inputs["fringes"] = {"value": q.value, "sigma": q.sigma, "unit": "", "text": args.fringes}
+        return q, None
     record = read_count_result(args.result)
     s = record.summary
     gaps = s.get("gaps") or []
@@ -255,19 +216,21 @@ def _count(args, inputs: _Inputs, notes: list[str]):
                      "bridged counts carry their own sigma")
     if args.log:
         return None, record
-    if "total_fringes" in s:
+    if s.get("total_fringes") is not None:
         q = Uncertain(float(s["total_fringes"]), float(s.get("total_fringes_sigma") or 0.0))
     else:
         f = record.frames["fringes"].dropna()
         if f.empty:
             raise InputError(f"{args.result}: no count in frames.csv; rerun 'fringecount count --out'")
         last = record.frames.loc[f.index[-1]]
-        q = Uncertain(float(last["fringes"]), float(last.get("fringes_sigma", 0.0) or 0.0))
+        sig = float(last["fringes_sigma"]) if np.isfinite(last["fringes_sigma"]) else 0.0
+        q = Uncertain(float(last["fringes"]), sig)
     notes.append(f"fringes taken from {args.result} (total count of the recording)")
-    return inputs.add("fringes", q, ""), record
+    reader.inputs["fringes"] = {"value": q.value, "sigma": q.sigma, "unit": ""}
+    return q, record
 
 
-def _log_series(args, record, kind: str | None, inputs: _Inputs, notes: list[str]):
+def _log_series(args, record, kind: str | None, reader: ParamReader):
     """Trusted (x in canonical units, fringes, sigma) from the aligned log; fit info dict."""
     log = read_drive_log(args.log, time_column=args.log_time_column, value_column=args.log_column)
     offset = parse_quantity(args.log_offset, "time", name="--log-offset").value
@@ -277,181 +240,130 @@ def _log_series(args, record, kind: str | None, inputs: _Inputs, notes: list[str
         a = convert_value(0.0, args.log_unit, kind, name="--log-unit")
         b = convert_value(1.0, args.log_unit, kind, name="--log-unit") - a
         x = a + b * x
-    inputs.items["log"] = {"file": str(args.log), "column": log.attrs.get("value_column"), "unit": args.log_unit,
-                           "offset_s": offset}
-    notes.append(f"fit over {len(x)} trusted frames inside the log; {excluded} frame(s) excluded "
-                 "(untrusted or outside the log)")
+    reader.inputs["log"] = {"file": str(args.log), "column": log.attrs.get("value_column"), "unit": args.log_unit,
+                            "offset_s": offset}
+    reader.notes.append(f"fit over {len(x)} trusted frames inside the log; {excluded} frame(s) excluded "
+                        "(untrusted or outside the log)")
     return x, y, s, {"n_points": int(len(x)), "excluded_frames": excluded}
 
 
-def _fit_info(info: dict, fit, residual_unit: str = "fringes") -> dict:
-    res = np.asarray(fit.residuals, dtype=float)
-    info.update({"chi2_reduced": float(fit.chi2_reduced), "rms_residual": float(np.sqrt(np.mean(res**2))),
+def _fit_info(info: dict, residuals, chi2_reduced: float, residual_unit: str = "fringes") -> dict:
+    res = np.asarray(residuals, dtype=float)
+    info.update({"chi2_reduced": float(chi2_reduced), "rms_residual": float(np.sqrt(np.mean(res**2))),
                  "max_abs_residual": float(np.max(np.abs(res))), "residual_unit": residual_unit,
                  "residuals": [float(r) for r in res]})
     return info
 
 
-def _material(args):
-    if getattr(args, "material", None):
-        return get_material(args.material)
-    if getattr(args, "sellmeier", None):
-        return parse_coefficients(args.sellmeier, "sellmeier")
-    if getattr(args, "cauchy", None):
-        return parse_coefficients(args.cauchy, "cauchy")
-    return None
+# ---------------------------------------------------------------- models fed by a drive log
+def _plate_rotation_log(args, reader, record):
+    thickness = reader.quantity("thickness", "length")
+    lam = reader.wavelength("wavelength")
+    reader.notes.append("index relative to air; wavelength in air (glass-catalogue convention)")
+    if reader.text("angle") is not None:
+        reader.notes.append("--angle ignored: the angles come from the log")
+    x, y, s, info = _log_series(args, record, "angle", reader)
+    fit = fit_plate_rotation(x, y, s, thickness, lam)
+    reader.notes.append("fit of the exact model with a free zero-angle offset and count offset")
+    q = {"refractive_index": fit.refractive_index, "zero_angle": fit.zero_angle_rad}
+    return q, _fit_info(info, fit.residuals, fit.chi2_reduced)
 
 
-def _air_inputs(air: AirConditions, inputs: _Inputs, notes: list[str]) -> None:
-    inputs.add("temperature", air.temperature_K, "K")
-    inputs.add("pressure", air.pressure_Pa, "Pa")
-    inputs.add("humidity", air.humidity_percent, "%")
-    inputs.add("co2", air.co2_ppm, "umol/mol")
-    if air.note():
-        notes.append(air.note())
-
-
-# ---------------------------------------------------------------- models
-def _plate_rotation(args, air, inputs, notes):
-    thickness = _req(args, "thickness", "length", "--thickness", "m", inputs)
-    lam = _wavelength(args, args.wavelength, "--wavelength", "air", air, inputs, notes)
-    fringes, record = _count(args, inputs, notes)
-    notes.append("index relative to air; wavelength in air (REFERENCES convention of glass catalogues)")
-    if record is not None and args.log:
-        if args.angle is not None:
-            notes.append("--angle ignored: the angles come from the log")
-        x, y, s, info = _log_series(args, record, "angle", inputs, notes)
-        fit = fit_plate_rotation(x, y, s, thickness, lam)
-        notes.append("fit of the exact model with a free zero-angle offset and count offset")
-        q = {"refractive_index": fit.refractive_index, "zero_angle": fit.zero_angle_rad}
-        info.update({"chi2_reduced": fit.chi2_reduced, "rms_residual": float(np.sqrt(np.mean(fit.residuals**2))),
-                     "max_abs_residual": float(np.max(np.abs(fit.residuals))), "residual_unit": "fringes",
-                     "residuals": [float(r) for r in fit.residuals]})
-        return q, info
-    angle = _req(args, "angle", "angle", "--angle", "rad", inputs)
-    notes.append("exact closed-form inverse (not the small-angle formula); the angle sigma should include "
-                 "the uncertainty of normal incidence")
-    return derive_plate_rotation(fringes, thickness, lam, angle), None
-
-
-def _wavelength_scan(args, air, inputs, notes):
-    material = _material(args)
+def _wavelength_scan_log(args, reader, record):
+    material = reader.material()
+    thickness = reader.quantity("thickness", "length")
+    reader.notes.append("the count measures the GROUP index n_g = n - lambda dn/dlambda; the phase index changes "
+                        "during the scan and needs a dispersion model")
+    reader.notes.append("wavelengths in air and indices relative to air (catalogue convention)")
+    x, y, s, info = _log_series(args, record, "wavelength", reader)
+    if reader.choice("wavelength_in", ("air", "vacuum"), "air") == "vacuum":
+        air = reader.air()
+        x = x / air_index_ciddor(x, air.temperature_K.value - 273.15, air.pressure_Pa.value,
+                                 air.humidity_percent.value, air.co2_ppm.value)
+        reader.notes.append("logged wavelengths converted from vacuum to air (Ciddor)")
+    fit = weighted_line_fit(1.0 / x, y, s)
+    lam_bar = 1.0 / fit.x_mean
+    ng = propagate(lambda slope, thickness_m: 1 + abs(slope) / (2 * thickness_m),
+                   {"slope": Uncertain(fit.slope, fit.slope_sigma), "thickness_m": thickness}, "",
+                   note="slope of count against wavenumber, n_g = 1 + |dN/dsigma|/(2t)")
+    ng = Measurement(ng.value, ng.uncertainty, "", tuple(("fit" if k == "slope" else k, v) for k, v in ng.budget),
+                     ng.note)
+    q = {"group_index": ng, "mid_wavelength": Measurement(lam_bar, 0.0, "m")}
     if material is not None:
-        inputs.items["material"] = {"name": material.name, "source": material.source}
-    thickness = None if args.thickness is None else _req(args, "thickness", "length", "--thickness", "m", inputs)
-    fringes, record = _count(args, inputs, notes)
-    notes.append("the count measures the GROUP index n_g = n - lambda dn/dlambda; the phase index changes "
-                 "during the scan and needs a dispersion model")
-    notes.append("wavelengths in air and indices relative to air (catalogue convention)")
-    if record is not None and args.log:
-        if thickness is None:
-            raise InputError("with --log, give --thickness (the fit measures the group index)")
-        x, y, s, info = _log_series(args, record, "wavelength", inputs, notes)
-        if args.wavelength_in == "vacuum":
-            x = x / air_index_ciddor(x, air.temperature_K.value - 273.15, air.pressure_Pa.value,
-                                     air.humidity_percent.value, air.co2_ppm.value)
-            notes.append("logged wavelengths converted from vacuum to air (Ciddor)")
-        sigma_wn = 1.0 / x
-        fit = weighted_line_fit(sigma_wn, y, s)
-        lam_bar = 1.0 / fit.x_mean
-        ng = Measurement(1 + abs(fit.slope) / (2 * thickness.value),
-                         math.hypot(fit.slope_sigma / (2 * thickness.value),
-                                    abs(fit.slope) / (2 * thickness.value**2) * thickness.sigma), "",
-                         (("fit", fit.slope_sigma / (2 * thickness.value)),
-                          ("thickness_m", abs(fit.slope) / (2 * thickness.value**2) * thickness.sigma)),
-                         "slope of count against wavenumber, n_g = 1 + |dN/dsigma|/(2t)")
-        q = {"group_index": ng, "mid_wavelength": Measurement(lam_bar, 0.0, "m")}
-        if material is not None:
-            q["phase_index"] = Measurement(group_to_phase_index(ng.value, lam_bar, material), ng.uncertainty, "",
-                                           ng.budget, f"n = n_g + lambda dn/dlambda ({material.name})")
-        return q, _fit_info(info, fit)
-    start = _wavelength(args, args.start, "--start", "air", air, inputs, notes)
-    stop = _wavelength(args, args.stop, "--stop", "air", air, inputs, notes, required=material is None)
-    if thickness is None and material is None:
-        raise InputError("wavelength scan: give --thickness (or --material to solve for the thickness)")
-    if args.stop is None and material is None:
-        raise InputError("wavelength scan: give --stop (or --material to solve for the tuning)")
-    if material is not None and args.stop is not None and thickness is not None:
-        notes.append(f"phase index by the exact Sellmeier difference: the sample is the {material.name} "
-                     "curve plus a constant offset")
-    return derive_wavelength_scan(fringes, thickness, start, stop, material), None
+        q["phase_index"] = Measurement(group_to_phase_index(ng.value, lam_bar, material), ng.uncertainty, "",
+                                       ng.budget, f"n = n_g + lambda dn/dlambda ({material.name})")
+    return q, _fit_info(info, fit.residuals, fit.chi2_reduced)
 
 
-def _gas_cell(args, air, inputs, notes):
-    length = _req(args, "length", "length", "--length", "m", inputs)
-    lam = _wavelength(args, args.wavelength, "--wavelength", "vacuum", air, inputs, notes)
-    t_ref = parse_quantity(args.reference_temperature, "temperature", name="--reference-temperature").value
-    p_ref = parse_quantity(args.reference_pressure, "pressure", name="--reference-pressure").value
-    inputs.add("reference_temperature", Uncertain(t_ref), "K", args.reference_temperature)
-    inputs.add("reference_pressure", Uncertain(p_ref), "Pa", args.reference_pressure)
-    fringes, record = _count(args, inputs, notes)
-    notes.append("refractivity at the cell conditions; the reduction to reference conditions uses the "
-                 "ideal-gas density ratio (compressibility < 3e-4 relative below 1 atm)")
-    notes.append("refractivity_ciddor / refractivity_edlen: predictions for AIR at the stated conditions")
-    if record is not None and args.log:
-        x, y, s, info = _log_series(args, record, "pressure", inputs, notes)
-        if args.pressure is None:
-            air = AirConditions(air.temperature_K, Uncertain(float(np.max(x))), air.humidity_percent, air.co2_ppm,
-                                tuple(a for a in air.assumed if "kPa" not in a))
-            notes.append(f"pressure for the comparison: the highest logged pressure, {np.max(x) / 1e3:.3f} kPa")
-        fit = weighted_line_fit(x, y, s)
-        _air_inputs(air, inputs, notes)
-        return derive_gas_cell_slope(fit, length, lam, air, reference_temperature_K=t_ref,
-                                     reference_pressure_Pa=p_ref), _fit_info(info, fit)
-    _air_inputs(air, inputs, notes)
-    return derive_gas_cell(fringes, length, lam, air, reference_temperature_K=t_ref, reference_pressure_Pa=p_ref), None
+def _gas_cell_log(args, reader, record):
+    length = reader.quantity("length", "length")
+    lam = reader.wavelength("wavelength")
+    t_ref, p_ref = gas_reference(reader)
+    gas_notes(reader)
+    x, y, s, info = _log_series(args, record, "pressure", reader)
+    pressure_given = reader.text("pressure") is not None
+    air = reader.air()
+    if not pressure_given:
+        air = AirConditions(air.temperature_K, Uncertain(float(np.max(x))), air.humidity_percent, air.co2_ppm,
+                            tuple(a for a in air.assumed if "kPa" not in a))
+        reader.inputs["pressure"] = {"value": float(np.max(x)), "sigma": 0.0, "unit": "Pa"}
+        reader.notes.append(f"pressure for the comparison: the highest logged pressure, {np.max(x) / 1e3:.3f} kPa")
+    fit = weighted_line_fit(x, y, s)
+    q = derive_gas_cell_slope(fit, length, lam, air, reference_temperature_K=t_ref, reference_pressure_Pa=p_ref)
+    return q, _fit_info(info, fit.residuals, fit.chi2_reduced)
 
 
-def _displacement(args, air, inputs, notes):
-    lam = _wavelength(args, args.wavelength, "--wavelength", "vacuum", air, inputs, notes)
-    fringes, record = _count(args, inputs, notes)
-    _air_inputs(air, inputs, notes)
-    notes.append(f"d = N lambda_vac/({args.passes} n_air), n_air by {args.air_equation}")
-    if record is not None and args.log:
-        x, y, s, info = _log_series(args, record, None, inputs, notes)
-        drive_fit = fit_drive(x, y, s, lam, air, passes=args.passes, equation=args.air_equation,
-                              drive_unit=args.log_unit)
-        q = {"sensitivity": drive_fit.sensitivity, "hysteresis": drive_fit.hysteresis}
-        s_total = record.summary
-        if "total_fringes" in s_total:
-            q.update({"displacement": derive_displacement(
-                Uncertain(float(s_total["total_fringes"]), float(s_total.get("total_fringes_sigma") or 0.0)),
-                lam, air, passes=args.passes, equation=args.air_equation)["displacement"]})
-        info["hysteresis_fraction"] = drive_fit.hysteresis_fraction
-        info["frames_up"], info["frames_down"] = drive_fit.n_up, drive_fit.n_down
-        if not math.isfinite(drive_fit.hysteresis.value):
-            notes.append("hysteresis not computed: the log does not have both an up and a down stroke")
-        fi = _fit_info(info, drive_fit.fit)
-        fi["residuals_m"] = [float(r) for r in drive_fit.residuals_m]
-        return q, fi
-    return derive_displacement(fringes, lam, air, passes=args.passes, equation=args.air_equation), None
+def _displacement_log(args, reader, record):
+    lam = reader.wavelength("wavelength")
+    passes = reader.integer("passes", 2)
+    eq = reader.choice("air_equation", ("ciddor", "edlen"), "ciddor")
+    air = reader.air()
+    reader.notes.append(f"d = N lambda_vac/({passes} n_air), n_air by {eq}")
+    x, y, s, info = _log_series(args, record, None, reader)
+    drive_fit = fit_drive(x, y, s, lam, air, passes=passes, equation=eq, drive_unit=args.log_unit)
+    q = {"sensitivity": drive_fit.sensitivity, "hysteresis": drive_fit.hysteresis}
+    total = record.summary
+    if total.get("total_fringes") is not None:
+        count = Uncertain(float(total["total_fringes"]), float(total.get("total_fringes_sigma") or 0.0))
+        q["displacement"] = derive_displacement(count, lam, air, passes=passes, equation=eq)["displacement"]
+    info["hysteresis_fraction"] = drive_fit.hysteresis_fraction
+    info["frames_up"], info["frames_down"] = drive_fit.n_up, drive_fit.n_down
+    if not math.isfinite(drive_fit.hysteresis.value):
+        reader.notes.append("hysteresis not computed: the log does not have both an up and a down stroke")
+    fi = _fit_info(info, drive_fit.fit.residuals, drive_fit.fit.chi2_reduced)
+    fi["residuals_m"] = [float(r) for r in drive_fit.residuals_m]
+    return q, fi
 
 
-def _expansion(args, air, inputs, notes):
-    length = _req(args, "length", "length", "--length", "m", inputs)
-    lam = _wavelength(args, args.wavelength, "--wavelength", "vacuum", air, inputs, notes)
-    fringes, record = _count(args, inputs, notes)
-    _air_inputs(air, inputs, notes)
-    notes.append("mean coefficient over the temperature change; mount and reference-arm expansion not corrected")
-    if record is not None and args.log:
-        x, y, s, info = _log_series(args, record, "temperature", inputs, notes)
-        fit = weighted_line_fit(x, y, s)
-        return derive_expansion_slope(fit, length, lam, air, passes=args.passes,
-                                      equation=args.air_equation), _fit_info(info, fit)
-    dt = _req(args, "delta_t", "temperature_difference", "--delta-t", "K", inputs)
-    return derive_expansion(fringes, length, dt, lam, air, passes=args.passes, equation=args.air_equation), None
+def _expansion_log(args, reader, record):
+    length = reader.quantity("length", "length")
+    lam = reader.wavelength("wavelength")
+    passes = reader.integer("passes", 2)
+    eq = reader.choice("air_equation", ("ciddor", "edlen"), "ciddor")
+    air = reader.air()
+    if reader.text("delta_t") is not None:
+        reader.notes.append("--delta-t ignored: the temperatures come from the log")
+    reader.notes.append("mean coefficient over the logged temperature range; mount and reference-arm expansion "
+                        "not corrected")
+    x, y, s, info = _log_series(args, record, "temperature", reader)
+    fit = weighted_line_fit(x, y, s)
+    q = derive_expansion_slope(fit, length, lam, air, passes=passes, equation=eq)
+    return q, _fit_info(info, fit.residuals, fit.chi2_reduced)
 
 
-_RUNNERS = {"plate-rotation": _plate_rotation, "wavelength-scan": _wavelength_scan, "gas-cell": _gas_cell,
-            "displacement": _displacement, "expansion": _expansion}
+_LOG_RUNNERS = {"plate-rotation": _plate_rotation_log, "wavelength-scan": _wavelength_scan_log,
+                "gas-cell": _gas_cell_log, "displacement": _displacement_log, "expansion": _expansion_log}
 
 
 def run(args: argparse.Namespace) -> int:
     """Run one ``derive`` model and print the result (table, or JSON with ``--json``)."""
-    air = air_from_args(args)
-    inputs, notes = _Inputs(), []
-    quantities, fit = _RUNNERS[args.model](args, air, inputs, notes)
-    emit(args, args.model, quantities, inputs.items, notes, fit)
+    reader = ParamReader(args.model, _params(args), prefix="--")
+    fringes, record = _count(args, reader)
+    if record is not None and args.log:
+        quantities, fit = _LOG_RUNNERS[args.model](args, reader, record)
+    else:
+        quantities, fit = derive_from_params(reader, fringes).quantities, None
+    emit(args, args.model, quantities, reader.inputs, reader.notes, fit)
     return 0
 
 

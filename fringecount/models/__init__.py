@@ -25,6 +25,7 @@ from .air import (
     saturation_vapour_pressure,
     vacuum_to_air_wavelength,
 )
+from .by_name import MODEL_PARAMETERS, Derivation, ParamReader, derive_by_name, derive_from_params
 from .dispersion import CATALOGUE, Cauchy, Sellmeier, get_material, material_names, parse_coefficients
 from .displacement import DriveFit, derive_displacement, displacement_from_fringes, fit_drive
 from .expansion import derive_expansion, derive_expansion_slope, expansion_coefficient
@@ -53,6 +54,7 @@ __all__ = [
     "Measurement", "Reference", "budget_table", "propagate",
     "STANDARD_CONDITIONS", "AirConditions", "air_conditions", "air_index", "air_index_ciddor", "air_index_edlen",
     "air_to_vacuum_wavelength", "derive_air_index", "saturation_vapour_pressure", "vacuum_to_air_wavelength",
+    "MODEL_PARAMETERS", "Derivation", "ParamReader", "derive_by_name", "derive_from_params",
     "CATALOGUE", "Cauchy", "Sellmeier", "get_material", "material_names", "parse_coefficients",
     "DriveFit", "derive_displacement", "displacement_from_fringes", "fit_drive",
     "derive_expansion", "derive_expansion_slope", "expansion_coefficient",
