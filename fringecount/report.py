@@ -829,7 +829,7 @@ def render_roi(inspection) -> RoiFigure:
     inspection : RoiInspection
         As returned by :func:`fringecount.pipeline.inspect_roi`: ``image``
         (M, N) ndarray, ``mask`` and ``saturated`` (M, N) bool, ``center``
-        ``(x, y)`` px, ``roi`` ``(inner, outer, crop)`` in use, ``suggested``
+        ``(x, y)`` px, ``roi`` (dict or tuple of ``inner``, ``outer``, ``crop``) in use, ``suggested``
         dict, ``radius_range_px``, ``profile_r_px`` and ``profile_values``.
 
     Returns
@@ -838,7 +838,8 @@ def render_roi(inspection) -> RoiFigure:
 
     Notes
     -----
-    Pixel (row, col) is drawn centred on (x = col, y = row), so the origin is the
+    The profile panel sits under the frame (not over it) so that it hides no
+    fringes. Pixel (row, col) is drawn centred on (x = col, y = row), so the origin is the
     centre of pixel (0, 0), as everywhere in fringecount. Pixels left out of the
     analysis are dimmed; saturated pixels are painted vermillion. Solid circles
     are the annulus in use, dashed ones the suggested annulus.
@@ -854,13 +855,17 @@ def render_roi(inspection) -> RoiFigure:
         raise InputError(f"ROI picture needs a 2-D frame, got shape {image.shape}; pick a colour channel")
     rows, cols = image.shape
     lo, hi = _value_range(image.astype(float), image.dtype)
+    # page in inches, top to bottom: title, frame, its x labels, profile, its x label, legend
     width_in = 7.0
     img_h_in = width_in * 0.86 * rows / cols
-    fig = Figure(figsize=(width_in, img_h_in + 1.5), dpi=_DPI)
+    prof_h_in, legend_in = 1.15, 0.55
+    heights = (0.45, img_h_in, 0.6, prof_h_in, 0.45, legend_in)
+    total_in = sum(heights)
+    fig = Figure(figsize=(width_in, total_in), dpi=_DPI)
     FigureCanvasAgg(fig)
-    top = 1.0 - 0.55 / (img_h_in + 1.5)
-    bottom = 0.95 / (img_h_in + 1.5)
-    ax = fig.add_axes((0.07, bottom, 0.86, top - bottom))
+    img_bottom = (total_in - heights[0] - img_h_in) / total_in
+    ax = fig.add_axes((0.07, img_bottom, 0.86, img_h_in / total_in))
+    prof_box = (0.07, (heights[4] + legend_in) / total_in, 0.86, prof_h_in / total_in)
     ax.imshow(image, cmap="gray", vmin=lo, vmax=hi, interpolation="nearest")
     overlay = np.zeros((rows, cols, 4))
     mask = getattr(inspection, "mask", None)
@@ -881,8 +886,11 @@ def render_roi(inspection) -> RoiFigure:
     ax.set_ylabel("y (row, px)", fontsize=8)
 
     cx, cy = (float(v) for v in inspection.center)
-    roi = tuple(inspection.roi) if inspection.roi is not None else (0.0, None, None)
-    inner, outer, crop = (list(roi) + [None, None, None])[:3]
+    roi = getattr(inspection, "roi", None)
+    if isinstance(roi, dict):
+        inner, outer, crop = roi.get("inner"), roi.get("outer"), roi.get("crop")
+    else:
+        inner, outer, crop = (list(roi or ()) + [None, None, None])[:3]
     suggested = dict(inspection.suggested or {})
     sky, orange, green = OKABE_ITO["sky blue"], OKABE_ITO["orange"], OKABE_ITO["bluish green"]
     handles = []
@@ -922,10 +930,9 @@ def render_roi(inspection) -> RoiFigure:
     r = np.asarray(getattr(inspection, "profile_r_px", []), dtype=float)
     values = np.asarray(getattr(inspection, "profile_values", []), dtype=float)
     if r.size and r.size == values.size:
-        # a white card behind the inset, its tick labels and its title
-        ax.add_patch(Rectangle((0.555, 0.0), 0.445, 0.40, transform=ax.transAxes, facecolor="white",
-                               edgecolor="#888888", linewidth=0.6, zorder=4))
-        inset = ax.inset_axes((0.62, 0.085, 0.36, 0.25), zorder=5)
+        # the profile sits under the frame rather than over it, so it hides no fringes
+        inset = fig.add_axes(prof_box)
+        _style_axes(inset, "")
         inset.plot(r, values, color=OKABE_ITO["blue"], linewidth=1.0)
         usable = getattr(inspection, "radius_range_px", None)
         if usable is not None and all(v is not None and math.isfinite(v) for v in usable):
@@ -938,9 +945,12 @@ def render_roi(inspection) -> RoiFigure:
             if value is not None and math.isfinite(value) and value > 0:
                 inset.axvline(value, color=orange, linewidth=1.2, linestyle="--")
         what = "radial profile" if geometry != "straight" else "profile across the fringes"
-        inset.set_title(what + " (shaded: usable)", fontsize=7, pad=3)
-        inset.set_xlabel("r (px)" if geometry != "straight" else "distance (px)", fontsize=6, labelpad=1)
-        inset.tick_params(labelsize=6, pad=1)
+        inset.set_title(f"{PANEL_ROI_PROFILE}: {what} (shaded: usable range; solid: in use; "
+                        "dashed: suggested)", loc="left", fontsize=8, fontweight="bold", pad=3)
+        inset.set_xlabel("r (px, from the centre)" if geometry != "straight" else "distance (px)",
+                         fontsize=8, labelpad=1)
+        inset.set_ylabel("mean value", fontsize=8)
+        inset.tick_params(labelsize=7)
         panels.append(PANEL_ROI_PROFILE)
     return RoiFigure(figure=fig, panels=tuple(panels), legend=tuple(legend))
 

@@ -62,8 +62,9 @@ def count_options(args: argparse.Namespace, suggested: dict[str, Any]) -> list[s
     args : argparse.Namespace
         Parsed ``roi`` options (same clip and ROI options as ``count``).
     suggested : dict
-        ``inner``, ``outer`` (px) and ``crop`` (``(x0, y0, x1, y1)`` or None); a key
-        that is absent keeps the option as given.
+        ``inner``, ``outer`` (px), ``crop`` (``(x0, y0, x1, y1)`` or None) and
+        optionally ``center`` (``(x, y)`` px); a key that is absent keeps the
+        option as given.
 
     Returns
     -------
@@ -80,8 +81,12 @@ def count_options(args: argparse.Namespace, suggested: dict[str, Any]) -> list[s
         opts += ["--channel", args.channel]
     if args.frames:
         opts += ["--frames", args.frames]
-    if args.center:
-        opts += ["--center", args.center.replace(" ", "")]
+    center = suggested.get("center") if suggested.get("center") is not None else args.center
+    if center:
+        if isinstance(center, str):
+            opts += ["--center", center.replace(" ", "")]
+        else:
+            opts += ["--center", ",".join(f"{round(float(v), 2):g}" for v in center)]
     if inner is not None and float(inner) > 0:
         opts += ["--inner", _number(inner)]
     if outer is not None and math.isfinite(float(outer)):
