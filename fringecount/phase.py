@@ -46,6 +46,12 @@ class RadialModel:
     envelope: np.ndarray
     order: int
     envelope_x: np.ndarray | None = None
+    basis: np.ndarray | None = None   # (3, n_bins) mean, cos and sin patterns (few-fringe mode)
+
+    @property
+    def mode(self) -> str:
+        """``"radial"`` (phase model across the ROI) or ``"temporal"`` (few fringes: patterns from the clip)."""
+        return "radial" if self.basis is None else "temporal"
 
     def envelope_at(self, x: np.ndarray) -> np.ndarray:
         """Envelope on another bin grid (interpolated), normalised to mean 1."""
@@ -258,6 +264,11 @@ def estimate_model(profiles: np.ndarray, coord: np.ndarray, counts: np.ndarray, 
             continue
         rss, kk = _profile_rss(shape, Ps, Vs, x, a[:, 1], env, w, bg)
         candidates.append((order, shape, rss, float(np.median(kk))))
+    fringes_in_roi = max((abs(c[3]) * float(np.ptp(x + c[1][0] * x * x + c[1][1] * x ** 3)) / (2 * np.pi)
+                          for c in candidates), default=0.0)
+    if fringes_in_roi < 2.0:
+        logger.debug("only %.2f fringes across the ROI: temporal (clip-pattern) mode", fringes_in_roi)
+        return temporal_model(P, x, counts, scale)
     if not candidates:
         raise ValueError("no fringe frequency found in the profiles")
     npts = float(Vs.sum())
@@ -332,6 +343,114 @@ def _smooth_track(values, sigmas, good, window):
     return out, sig
 
 
+def _fill_bins(P):
+    ok = np.isfinite(P)
+    cnt = ok.sum(axis=0)
+    colmean = np.where(cnt > 0, np.where(ok, P, 0.0).sum(axis=0) / np.maximum(cnt, 1), 0.0)
+    return np.where(np.isfinite(P), P, colmean[None, :])
+
+
+def _ellipse_to_circle(a: np.ndarray, b: np.ndarray):
+    """Heydemann (1981) correction: conic fit of the Lissajous points, returns a map to the unit circle."""
+    A = np.column_stack([a * a, a * b, b * b, a, b])
+    theta = np.linalg.lstsq(A, np.ones_like(a), rcond=None)[0]
+    M = np.array([[theta[0], theta[1] / 2], [theta[1] / 2, theta[2]]])
+    if np.any(np.linalg.eigvalsh(M) <= 0):
+        raise ValueError("Lissajous figure is not an ellipse")
+    c = -0.5 * np.linalg.solve(M, theta[3:5])
+    k = 1.0 + c @ M @ c
+    L = np.linalg.cholesky(M / k).T  # u = L (p - c) on the unit circle
+    return c, L
+
+
+def temporal_model(P, x, counts, scale) -> "RadialModel":
+    """Few fringes across the ROI: fringe patterns from the clip itself (rank-2 decomposition).
+
+    Each bin's brightness-normalised signal is V cos(phi_t - psi(x)); the two
+    leading principal components span it. Their scores trace an ellipse
+    (Lissajous figure), mapped to a circle by the Heydemann (1981) conic fit;
+    psi(x) then follows by regression, oriented so it grows outward.
+    """
+    Pf = _fill_bins(P)
+    w = np.sqrt(np.maximum(counts, 0))
+    bright = (Pf * counts).sum(1) / max(counts.sum(), 1e-12)
+    ok = bright > 0.25 * np.percentile(bright, 75)
+    Q = Pf[ok] / bright[ok, None]
+    mean = Q.mean(axis=0)
+    D = (Q - mean) * w
+    if D.shape[0] < 4:
+        raise ValueError("too few lit frames")
+    cov = D.T @ D
+    ev, evec = np.linalg.eigh(cov)
+    v1, v2 = evec[:, -1], evec[:, -2]
+    a, b = D @ v1, D @ v2
+    r = np.hypot(a - a.mean(), b - b.mean())
+    sel = r > 0.3 * np.median(r)
+    try:
+        c, L = _ellipse_to_circle(a[sel], b[sel])
+    except (ValueError, np.linalg.LinAlgError):
+        raise ValueError("fringe motion too small to calibrate the few-fringe patterns") from None
+    u = (L @ (np.column_stack([a, b]) - c).T).T
+    rad = np.hypot(u[:, 0], u[:, 1])
+    good = (rad > 0.5) & (rad < 1.5)
+    if good.sum() < 4:
+        raise ValueError("too few frames on the Lissajous circle")
+    X = np.column_stack([np.ones(good.sum()), u[good, 0] / rad[good], u[good, 1] / rad[good]])
+    coef = np.linalg.lstsq(X, Q[good] - mean, rcond=None)[0]
+    alpha, beta = coef[1], coef[2]
+    psi = np.unwrap(np.arctan2(beta, alpha))
+    wt = (alpha ** 2 + beta ** 2) * counts
+    slope = np.polyfit(x, psi, 1, w=np.sqrt(wt))[0]
+    if slope < 0:  # rings expand when phi grows: psi must grow outward
+        beta = -beta
+    basis = np.vstack([mean, alpha, beta])
+    env = np.maximum(mean / max(float(mean.mean()), 1e-12), 1e-3)
+    return RadialModel(scale, (0.0, 0.0), float(abs(slope)), env, 0, x, basis)
+
+
+def _fit_temporal(P, model, counts) -> "PhaseFits":
+    Pf = np.where(np.isfinite(P), P, np.nan)
+    valid = np.isfinite(Pf)
+    m, al, be = model.basis
+    n, nb = P.shape
+    X = np.stack([m, al, be], axis=1)                      # (nb, 3)
+    phi = np.zeros(n)
+    sphi = np.zeros(n)
+    amp = np.zeros(n)
+    brightness = np.zeros(n)
+    resid = np.zeros(n)
+    vf = valid.mean(axis=1)
+    for i in range(n):
+        ok = valid[i] & (counts > 0)
+        if ok.sum() < 6:
+            phi[i], sphi[i], amp[i], resid[i] = 0.0, np.inf, 0.0, np.inf
+            continue
+        wv = np.sqrt(counts[ok])
+        Xi = X[ok] * wv[:, None]
+        yi = Pf[i, ok] * wv
+        G = Xi.T @ Xi
+        beta = np.linalg.solve(G + 1e-12 * np.trace(G) * np.eye(3), Xi.T @ yi)
+        r = yi - Xi @ beta
+        s2 = float(r @ r) / max(ok.sum() - 3, 1)
+        cov = np.linalg.inv(G) * s2
+        bb, cc, dd = beta
+        a2 = cc * cc + dd * dd
+        phi[i] = math.atan2(dd, cc)
+        j = np.array([-dd, cc]) / max(a2, 1e-300)
+        sphi[i] = math.sqrt(max(j @ cov[1:, 1:] @ j, 0.0))
+        brightness[i] = bb * float((m * counts).sum() / counts.sum())
+        amp[i] = math.sqrt(a2)
+        resid[i] = math.sqrt(s2 / max(float(counts[ok].mean()), 1e-300)) / max(abs(bb) * math.sqrt(a2), 1e-300)
+    # pointwise visibility of the clip pattern is hypot(alpha, beta) / mean; a frame's scales with hypot(c, d) / b
+    wsum = max(float(counts.sum()), 1e-300)
+    pattern_vis = float((np.hypot(al, be) / np.maximum(np.abs(m), 1e-300) * counts).sum() / wsum)
+    bcoef = brightness / max(float((m * counts).sum() / wsum), 1e-300)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        vis = np.where(bcoef > 0, amp / bcoef * pattern_vis, 0.0)
+    return PhaseFits(phase=phi, phase_sigma=sphi, visibility=vis, brightness=brightness,
+                     kappa=np.full(n, model.kappa), residual=resid, valid_fraction=vf)
+
+
 def fit_phases(profiles: np.ndarray, coord: np.ndarray, counts: np.ndarray, model: RadialModel, *,
                kappa_window: int = 31, chunk: int = 256) -> PhaseFits:
     """Fringe phase, its sigma and the visibility of every frame.
@@ -342,6 +461,8 @@ def fit_phases(profiles: np.ndarray, coord: np.ndarray, counts: np.ndarray, mode
     the smoothed-kappa uncertainty times the phase lever arm of the ROI.
     """
     P = np.asarray(profiles, dtype=float)
+    if model.basis is not None:
+        return _fit_temporal(P, model, np.asarray(counts, float))
     n, nb = P.shape
     x = coord / model.coord_scale
     h = model.h(x)

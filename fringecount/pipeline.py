@@ -31,7 +31,7 @@ from .center import CenterFit, fringe_images, locate_center, refine_center
 from .errors import InputError, NoFringesError, SettingsError
 from .frames import FrameSource, open_frames
 from .gaps import describe, find_gaps, flag_frames, unwrap_segments
-from .phase import RadialModel, estimate_model, fit_phases
+from .phase import RadialModel, estimate_model, fit_phases, temporal_model
 from .profile import ProfileBins, frame_profile, line_bins, ring_bins
 from .settings import CountSettings
 
@@ -235,11 +235,10 @@ class _ProfileStream:
         self.ok[k] = True
 
 
-def _stream(source: FrameSource, bins_by_block: Callable[[int], list[ProfileBins]], level,
+def _stream(source: FrameSource, bins_for_frame: Callable[[int], list[ProfileBins]], level,
             progress, block_len: int, block_samples: list | None):
     n = len(source)
     stream = None
-    current_block = -1
     frames = np.zeros(n, int)
     times = np.zeros(n)
     got = 0
@@ -247,13 +246,11 @@ def _stream(source: FrameSource, bins_by_block: Callable[[int], list[ProfileBins
         if k >= n:
             break
         blk = k // block_len
-        if blk != current_block:
-            current_block = blk
-            bl = bins_by_block(blk)
-            if stream is None:
-                stream = _ProfileStream(n, bl)
-            else:
-                stream.bins = bl
+        bl = bins_for_frame(k)
+        if stream is None:
+            stream = _ProfileStream(n, bl)
+        else:
+            stream.bins = bl
         img = fr.image
         stream.add(k, img, level)
         frames[k] = fr.index
@@ -370,7 +367,7 @@ def _count_open(source: FrameSource, settings: CountSettings, progress, t_start)
     n_blocks = int(math.ceil(n / block_len))
     track_drift = geom.kind == "rings" and settings.track_center and settings.center is None
     block_samples = [[] for _ in range(n_blocks)] if track_drift else None
-    stream, frames, times, got = _stream(source, lambda b: fixed, level, progress, block_len, block_samples)
+    stream, frames, times, got = _stream(source, lambda k: fixed, level, progress, block_len, block_samples)
     drift_info: dict = {"drift_accepted": False}
     centers = np.tile(np.asarray(base, float), (got, 1))
     if track_drift:
@@ -379,13 +376,24 @@ def _count_open(source: FrameSource, settings: CountSettings, progress, t_start)
             logger.info("ring centre drifts by up to %.2f px: second pass with a moving centre",
                         drift_info["max_drift_px"])
             ok = np.isfinite(est[:, 0])
-            bc = np.arange(n_blocks)[ok] * block_len + block_len / 2
-            cx = np.interp(np.arange(n_blocks) * block_len + block_len / 2, bc, est[ok, 0])
-            cy = np.interp(np.arange(n_blocks) * block_len + block_len / 2, bc, est[ok, 1])
-            cache = {b: make_bins((float(cx[b]), float(cy[b]))) for b in range(n_blocks)}
-            stream2, frames, times, got = _stream(source, lambda b: cache[b], level, None, block_len, None)
-            stream = stream2
-            centers = np.column_stack([cx[np.arange(got) // block_len], cy[np.arange(got) // block_len]])
+            # block estimates sit at the middle of their sampled frames; interpolate per frame
+            bc = np.asarray([np.mean([j for j in range(b * block_len, min(n, (b + 1) * block_len))
+                                      if (j % block_len) % max(1, block_len // 6) == 0][:6]) for b in range(n_blocks)])[ok]
+            frame_pos = np.arange(n)
+            cx = np.interp(frame_pos, bc, est[ok, 0])
+            cy = np.interp(frame_pos, bc, est[ok, 1])
+            cache: dict = {}
+
+            def per_frame(k):
+                key = (round(float(cx[k]) * 20), round(float(cy[k]) * 20))  # 0.05 px grid
+                if key not in cache:
+                    if len(cache) > 64:
+                        cache.clear()
+                    cache[key] = make_bins((key[0] / 20.0, key[1] / 20.0))
+                return cache[key]
+
+            stream, frames, times, got = _stream(source, per_frame, level, None, block_len, None)
+            centers = np.column_stack([cx[:got], cy[:got]])
     nb0 = stream.bins[0]
     profiles = stream.prof[0][:got].astype(float)
     usable = np.isfinite(profiles).sum(axis=1) >= max(8, nb0.n_bins // 4)
@@ -431,7 +439,18 @@ def _count_open(source: FrameSource, settings: CountSettings, progress, t_start)
             sys_center += (d * (err / delta)) ** 2
         sys_center = math.sqrt(sys_center)
     sys_model = 0.0
-    if model.order > 1:
+    if model.mode == "temporal":
+        # few-fringe patterns calibrated on each half of the clip: their disagreement is the model term
+        half = len(profiles) // 2
+        for part in (slice(0, half), slice(half, None)):
+            try:
+                alt_model = temporal_model(profiles[part], nb0.coord / model.coord_scale, nb0.counts,
+                                           model.coord_scale)
+            except ValueError:
+                continue
+            alt = fit_phases(profiles, nb0.coord, nb0.counts, alt_model)
+            sys_model = max(sys_model, abs(_endpoint_change(alt.phase, fits.phase, segment)))
+    elif model.order > 1:
         lower = model.with_shape((model.shape[0], 0.0) if model.order == 3 else (0.0, 0.0), model.order - 1)
         alt = fit_phases(profiles, nb0.coord, nb0.counts, lower)
         sys_model = abs(_endpoint_change(alt.phase, fits.phase, segment))
@@ -472,7 +491,7 @@ def _count_open(source: FrameSource, settings: CountSettings, progress, t_start)
         "visibility": {"median": _f(vis.median()), "p10": _f(vis.quantile(0.1)), "min": _f(vis.min()),
                        "floor": _f(table.attrs.get("visibility_floor"))},
         "sigma_budget": {k: float(v) for k, v in budget.items()},
-        "radial_model": {"order": model.order, "shape": list(model.shape), "kappa": model.kappa,
+        "radial_model": {"mode": model.mode, "order": model.order, "shape": list(model.shape), "kappa": model.kappa,
                          "coord_scale": model.coord_scale, "n_bins": int(nb0.n_bins)},
         "roi": {"inner_px": nb0.inner_px, "outer_px": nb0.outer_px, "crop": list(settings.crop) if settings.crop else None,
                 "saturation_level": level},
