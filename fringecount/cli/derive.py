@@ -23,6 +23,7 @@ from __future__ import annotations
 import argparse
 import json
 import math
+import re
 import sys
 
 import numpy as np
@@ -48,7 +49,7 @@ from ..models import (
     weighted_line_fit,
 )
 from ..models.by_name import MODEL_PARAMETERS, ParamReader, derive_from_params, gas_notes, gas_reference
-from ..units import Uncertain, convert_value, parse_number, parse_quantity
+from ..units import Uncertain, convert_value, parse_number, parse_quantity, unit_registry
 from . import add_output_arguments
 
 __all__ = ["register", "run", "emit", "add_air_arguments", "air_from_args"]
@@ -99,7 +100,10 @@ def _add_wavelength_convention(p: argparse.ArgumentParser, default: str) -> None
                         "with the Ciddor equation at the air conditions if they differ from the model's)")
 
 
-def _add_common(p: argparse.ArgumentParser) -> None:
+def _add_common(p: argparse.ArgumentParser, *, air_equation: bool = True) -> None:
+    if not air_equation:
+        add_output_arguments(p)
+        return
     p.add_argument("--air-equation", choices=("ciddor", "edlen"), default="ciddor",
                    help="equation for the index of air (default ciddor)")
     add_output_arguments(p)
@@ -124,7 +128,7 @@ def register(subparsers) -> None:
     p.add_argument("--angle", metavar="A", help="tilt from normal incidence, e.g. 10+/-0.05deg (not with --log)")
     _add_wavelength_convention(p, "air")
     add_air_arguments(p)
-    _add_common(p)
+    _add_common(p, air_equation=False)
     p.set_defaults(func=run, model="plate-rotation")
 
     p = models.add_parser("wavelength-scan", help="group (and phase) index of a plate from a tunable-laser scan",
@@ -142,7 +146,7 @@ def register(subparsers) -> None:
     m.add_argument("--cauchy", metavar="A,B,...", help="user Cauchy coefficients, lambda in um")
     _add_wavelength_convention(p, "air")
     add_air_arguments(p)
-    _add_common(p)
+    _add_common(p, air_equation=False)
     p.set_defaults(func=run, model="wavelength-scan")
 
     p = models.add_parser("gas-cell", help="refractivity of a gas filled into a cell of length L",
@@ -319,6 +323,10 @@ def _displacement_log(args, reader, record):
     eq = reader.choice("air_equation", ("ciddor", "edlen"), "ciddor")
     air = reader.air()
     reader.notes.append(f"d = N lambda_vac/({passes} n_air), n_air by {eq}")
+    try:
+        unit_registry().Unit(args.log_unit)
+    except Exception:
+        raise InputError(f"--log-unit: unknown unit {args.log_unit!r}; write e.g. V") from None
     x, y, s, info = _log_series(args, record, None, reader)
     drive_fit = fit_drive(x, y, s, lam, air, passes=passes, equation=eq, drive_unit=args.log_unit)
     q = {"sensitivity": drive_fit.sensitivity, "hysteresis": drive_fit.hysteresis}
@@ -382,6 +390,11 @@ def _display(value: float, unit: str) -> tuple[float, str]:
     return 1.0, unit
 
 
+def _input_label(name: str) -> str:
+    """Budget key as the user wrote it: ``thickness_m`` -> ``thickness``."""
+    return re.sub(r"_(m|K|Pa|percent|ppm|rad)$", "", name).replace("_", "-")
+
+
 def _fmt(value: float, sigma: float) -> tuple[str, str]:
     if not math.isfinite(value):
         return "nan", ""
@@ -420,8 +433,8 @@ def emit(args, model: str, quantities: dict[str, Measurement], inputs: dict, not
         v, s = _fmt(m.value * f, m.uncertainty * f)
         out.append(f"  {name:<26} {v:>20} +/- {s:<14} {unit}")
         for k, c, share in budget_table(m):
-            cv = _fmt(c * f, c * f)[1]
-            out.append(f"      {'from ' + k:<24} {'':>20}     {cv:<14} {unit:<8} {share * 100:5.1f} % of variance")
+            cv = _fmt(c * f, c * f)[1] if c > 0 else "0"
+            out.append(f"      {'from ' + _input_label(k):<24} {'':>20}     {cv:<14} {unit:<8} {share * 100:5.1f} % of variance")
     if fit is not None:
         out.append(f"  fit: {fit.get('n_points')} frames, {fit.get('excluded_frames')} excluded, "
                    f"reduced chi2 {fit.get('chi2_reduced', float('nan')):.3g}, "
