@@ -319,6 +319,11 @@ def _summary_lines(result, labels: Sequence[str]) -> tuple[list[str], list[str]]
             right.append(f"  {n} × {reason_label(reason)}")
         if len(items) > len(shown):
             right.append(f"  {sum(n for _, n in items[2:])} × {len(items) - 2} other reasons")
+    if n_gaps and "method" in gaps.columns:
+        methods: dict[str, int] = {}
+        for method in gaps["method"].fillna("").astype(str):
+            methods[method or "none"] = methods.get(method or "none", 0) + 1
+        right.append("Bridged by  " + ", ".join(f"{n} × {reason_label(m)}" for m, n in methods.items()))
     ambiguous = [lab for lab, a in zip(labels, gaps.get("ambiguous", [False] * n_gaps)) if _is_true(a)]
     if ambiguous:
         listed = ", ".join(ambiguous[:4]) + (", ..." if len(ambiguous) > 4 else "")
@@ -330,6 +335,24 @@ def _summary_lines(result, labels: Sequence[str]) -> tuple[list[str], list[str]]
         right.append(f"Recording   {Path(str(clip)).name}")
     right.append(f"Software    fringecount {summary.get('version', __version__)}")
     return left, right
+
+
+def _cumulative_sigma(frames, gaps) -> np.ndarray:
+    """1-sigma of the count at each frame relative to the first: frame noise and the gaps so far.
+
+    ``sqrt(fringes_sigma**2 + sum of fringes_across_sigma**2 over the gaps that start at
+    or before the frame)``; a gap counts in full from its first frame on. Gaps are
+    taken as independent, as the total's sigma does.
+    """
+    own = np.nan_to_num(_column(frames, "fringes_sigma", default=0.0), nan=0.0)
+    var = own ** 2
+    if len(gaps) and "frame" in frames.columns:
+        numbers = np.asarray(frames["frame"], dtype=float)
+        first = _column(gaps, "first_frame")
+        gap_sigma = np.nan_to_num(_column(gaps, "fringes_across_sigma", default=0.0), nan=0.0)
+        for a, s in zip(first, gap_sigma):
+            var = var + np.where(numbers >= a, s ** 2, 0.0)
+    return np.sqrt(var)
 
 
 def _thumbnail_choice(gaps, limit: int) -> list[int]:
@@ -520,7 +543,7 @@ def render_report(result, *, clip: str | os.PathLike | None = None) -> ReportFig
     _style_axes(ax_count, PANEL_COUNT)
     _shade_gaps(ax_count, spans, reasons, styles, alpha=GAP_TINT)
     fringes = _column(frames, "fringes")
-    sigma = _column(frames, "fringes_sigma", default=0.0)
+    sigma = _cumulative_sigma(frames, gaps)
     blue = OKABE_ITO["blue"]
     band = np.isfinite(sigma) & np.isfinite(fringes)
     if band.any():
@@ -541,10 +564,10 @@ def render_report(result, *, clip: str | os.PathLike | None = None) -> ReportFig
                                     alpha=0.8))
     handles = [Line2D([], [], color=blue, linewidth=1.4, label="count (trusted frames)")]
     if band.any():
-        handles.append(Patch(facecolor=blue, alpha=0.25, label="± 1 sigma"))
+        handles.append(Patch(facecolor=blue, alpha=0.25, label="± 1 sigma (gaps so far)"))
     if (~trusted).any():
         handles.append(Line2D([], [], color=blue, linewidth=0.8, linestyle=":",
-                              label="carried across a gap"))
+                              label="bridged across a gap"))
     for reason, (colour, hatch) in styles.items():
         handles.append(Patch(facecolor=colour, alpha=0.45, hatch=hatch, edgecolor=colour,
                              label=f"gap: {reason_label(reason)}"))
@@ -564,7 +587,7 @@ def render_report(result, *, clip: str | os.PathLike | None = None) -> ReportFig
     ax_vis.plot(t, _column(frames, "visibility"), color=blue, linewidth=1.0)
     threshold = summary.get("min_visibility")
     if threshold is None and isinstance(summary.get("visibility"), dict):
-        threshold = summary["visibility"].get("threshold")
+        threshold = summary["visibility"].get("floor", summary["visibility"].get("threshold"))
     if isinstance(threshold, (int, float)) and math.isfinite(threshold):
         ax_vis.axhline(threshold, color="black", linestyle="--", linewidth=0.8)
         ax_vis.text(1.0, threshold, f" trust limit {threshold:.2f}", transform=ax_vis.get_yaxis_transform(),
@@ -592,6 +615,13 @@ def render_report(result, *, clip: str | os.PathLike | None = None) -> ReportFig
                       label="y (row)")
         ax_drift.legend(loc="lower right", bbox_to_anchor=(1.0, 1.0), fontsize=7, ncols=2,
                         frameon=False, borderaxespad=0.0)
+        drift = summary.get("center", {}).get("drift") if isinstance(summary.get("center"), dict) else None
+        if isinstance(drift, dict) and drift.get("drift_accepted") is False:
+            largest = drift.get("max_drift_px")
+            extra = f" (largest drift seen {largest:.2f} px)" if isinstance(largest, (int, float)) else ""
+            ax_drift.text(0.01, 0.06, "drift not significant: one centre for the whole clip" + extra,
+                          transform=ax_drift.transAxes, fontsize=7, ha="left", va="bottom",
+                          bbox=dict(facecolor="white", edgecolor="none", alpha=0.85, pad=1.5))
     else:
         ax_drift.text(0.5, 0.5, "no centre estimate in any trusted frame", ha="center", va="center",
                       transform=ax_drift.transAxes, fontsize=8)
