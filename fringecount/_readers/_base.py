@@ -396,7 +396,13 @@ class FrameSource(abc.ABC):
         if not 0 <= k < len(self.indices):
             raise IndexError(f"frame {k} out of range for {len(self.indices)} selected frames")
         index = int(self.indices[k])
-        return self._plane(self._read_raw(index), index)
+        try:
+            return self._plane(self._read_raw(index), index)
+        except UnreadableFrame as exc:
+            if index not in self.metadata["unreadable"]:
+                self.metadata["unreadable"].append(index)
+            raise UnreadableFrame(f"cannot decode frame {index} of {self.path.name} ({exc}); "
+                                  "leave it out with --frames or repair the file") from None
 
     def __getitem__(self, k: int) -> np.ndarray:
         k = operator.index(k)

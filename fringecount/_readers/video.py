@@ -223,8 +223,9 @@ class VideoSource(FrameSource):
     cached. Seeking is exact for intra-only codecs (MJPG, FFV1) and usually for others.
     OpenCV hands frames over as 8-bit BGR, so video frames are uint8. Times are
     ``index / fps``: variable-frame-rate files are not timed per frame, but
-    iteration compares the container's timestamps with that rule and records
-    the largest difference in ``metadata["timestamp_deviation_s"]``.
+    iteration compares the container's timestamps (from the first one read)
+    with that rule, records the largest difference in
+    ``metadata["timestamp_deviation_s"]`` and warns above half a frame period.
     """
 
     def __init__(self, path: pathlib.Path, *, fps: float | None, channel: str, first_frame: Any,
@@ -362,6 +363,7 @@ class VideoSource(FrameSource):
                 position = first
             period = 1.0 / self.fps
             deviation = 0.0
+            offset_s: float | None = None
             wanted = iter(zip(self.indices.tolist(), self.times_s.tolist()))
             index, time_s = next(wanted)
             while True:
@@ -377,7 +379,10 @@ class VideoSource(FrameSource):
                 position += 1
                 stamp_s = cap.get(cv2.CAP_PROP_POS_MSEC) / 1000.0
                 if np.isfinite(stamp_s) and self.metadata["fps_source"] == "container":
-                    deviation = max(deviation, abs(stamp_s - time_s))
+                    if offset_s is None:      # the clock of a container need not start at 0
+                        offset_s = stamp_s - time_s
+                        self.metadata["first_timestamp_s"] = stamp_s
+                    deviation = max(deviation, abs(stamp_s - offset_s - time_s))
                 try:
                     image = self._plane(raw, index)
                 except UnreadableFrame as exc:
