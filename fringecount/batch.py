@@ -93,7 +93,7 @@ MIN_IMAGES_PER_FOLDER = 2
 #: adds ``derived_Q``, ``derived_Q_sigma`` and ``derived_Q_unit`` after these.
 BATCH_COLUMNS = (
     "clip", "status", "total_fringes", "total_fringes_sigma", "error",
-    "result_dir", "n_gaps", "ambiguous", "frames", "fps", "elapsed_s", "reused",
+    "result_dir", "n_gaps", "ambiguous", "frames", "fps", "elapsed_s", "reused", "settings_changed",
     "model", "model_params",
 )
 
@@ -112,11 +112,11 @@ MANIFEST_KEYS = {
     "geometry": "auto, rings or straight",
     "fixed_center": "true to keep one centre for the whole clip",
     "min_visibility": "visibility below which a frame is not trusted",
-    "max_step_fringes": "largest frame-to-frame step followed, in fringes (<= 0.5)",
-    "hop_range_fringes": "largest whole-fringe jump a mode hop is assumed to hide",
-    "wavelength_log": "CSV of time_s, wavelength_nm, relative to the manifest's folder",
-    "log_offset_s": "seconds added to the wavelength log's times",
-    "log_air_wavelengths": "true when the log's wavelengths are in air",
+    "max_step": "largest frame-to-frame step followed, in fringes (<= 0.5)",
+    "hop_range": "largest whole-fringe jump a mode hop is assumed to hide, in fringes",
+    "wavelengths": "wavemeter log (CSV: time_s, wavelength_nm), relative to the manifest's folder",
+    "log_offset": "seconds added to the wavelength log's times",
+    "air_wavelengths": "true when the log's wavelengths are in air",
     "model": "derive model applied to the count (see fringecount.models)",
 }
 
@@ -314,35 +314,33 @@ def _parse_frames(value: Any, where: str) -> dict[str, Any]:
     return {"first_frame": first, "last_frame": last, "step": step}
 
 
+#: Manifest keys holding one number, and the CountSettings field each sets.
+_FLOAT_SETTINGS = {"fps": "fps", "inner": "inner_radius_px", "outer": "outer_radius_px",
+                   "saturation": "saturation_level", "min_visibility": "min_visibility",
+                   "max_step": "max_step_fringes", "hop_range": "hop_range_fringes", "log_offset": "log_offset_s"}
+
+
 def _settings_changes(entry: Mapping[str, Any], base_dir: Path, where: str) -> dict[str, Any]:
     """Turn manifest keys (without path/model/params) into CountSettings changes."""
     kw: dict[str, Any] = {}
     for key, value in entry.items():
-        if key == "fps":
-            kw["fps"] = _parse_float(value, key, where)
-        elif key in ("channel", "geometry"):
+        if key in ("channel", "geometry"):
             kw[key] = str(value).strip().lower()
         elif key == "frames":
             kw.update(_parse_frames(value, where))
         elif key == "center":
             kw["center"] = _parse_numbers(value, 2, key, where, "320.5,240")
-        elif key == "inner":
-            kw["inner_radius_px"] = _parse_float(value, key, where)
-        elif key == "outer":
-            kw["outer_radius_px"] = _parse_float(value, key, where)
         elif key == "crop":
             kw["crop"] = _parse_numbers(value, 4, key, where, "100,50,540,430", cast=int)
-        elif key == "saturation":
-            kw["saturation_level"] = _parse_float(value, key, where)
         elif key == "fixed_center":
             kw["track_center"] = not _parse_bool(value, key, where)
-        elif key in ("min_visibility", "max_step_fringes", "hop_range_fringes", "log_offset_s"):
-            kw[key] = _parse_float(value, key, where)
-        elif key == "log_air_wavelengths":
-            kw[key] = _parse_bool(value, key, where)
-        elif key == "wavelength_log":
+        elif key in _FLOAT_SETTINGS:
+            kw[_FLOAT_SETTINGS[key]] = _parse_float(value, key, where)
+        elif key == "air_wavelengths":
+            kw["log_air_wavelengths"] = _parse_bool(value, key, where)
+        elif key == "wavelengths":
             log = Path(str(value))
-            kw[key] = str(log if log.is_absolute() else base_dir / log)
+            kw["wavelength_log"] = str(log if log.is_absolute() else base_dir / log)
         else:  # pragma: no cover - keys are checked before
             raise SettingsError(f"{where}: unknown key {key!r}")
     return kw
@@ -520,11 +518,12 @@ def _read_summary(folder: Path) -> dict[str, Any]:
         return json.load(fh)
 
 
-def analyse_item(item: BatchItem, out_dir: str | os.PathLike, *, force: bool = False,
+def analyse_item(item: BatchItem, out_dir: str | os.PathLike, *, force: bool = False, report: bool = False,
                  analyse: Callable | None = None) -> dict[str, Any]:
     """Analyse one clip into ``out_dir / item.result_name``; never raises for a bad clip.
 
-    This is what each worker (local process or Dask task) runs.
+    This is what each worker (local process or Dask task) runs. With ``report``
+    the folder also gets ``report.png``/``report.html`` (as ``count --report``).
 
     Returns
     -------
@@ -544,7 +543,7 @@ def analyse_item(item: BatchItem, out_dir: str | os.PathLike, *, force: bool = F
             from .results import write_result
 
             result = (analyse or _default_analyse())(item.clip, item.settings)
-            write_result(result, folder, force=force)
+            write_result(result, folder, force=force, report=report, clip=item.clip)
             outcome.update(status="ok", summary=_read_summary(folder))
         except ResultExistsError:  # another run finished it meanwhile: keep that result
             outcome.update(status="ok", summary=_read_summary(folder), reused=True)
@@ -589,6 +588,15 @@ def _is_ambiguous(summary: Mapping[str, Any]) -> bool | None:
     return False if "gaps" in summary else None
 
 
+def _settings_changed(item: BatchItem, summary: Mapping[str, Any]) -> bool | None:
+    """Whether the result was made with settings other than the batch's (``None``: not recorded)."""
+    recorded = summary.get("settings")
+    if not isinstance(recorded, Mapping):
+        return None
+    wanted = json.loads(json.dumps(item.settings.to_dict()))
+    return any(recorded.get(key) != value for key, value in wanted.items())
+
+
 def _row(item: BatchItem, outcome: Mapping[str, Any]) -> dict[str, Any]:
     row: dict[str, Any] = dict.fromkeys(BATCH_COLUMNS)
     row.update(clip=item.name, status=outcome["status"], error=outcome.get("error"),
@@ -603,7 +611,8 @@ def _row(item: BatchItem, outcome: Mapping[str, Any]) -> dict[str, Any]:
                    total_fringes_sigma=summary.get("total_fringes_sigma"),
                    n_gaps=len(summary.get("gaps") or ()),
                    ambiguous=_is_ambiguous(summary),
-                   frames=summary.get("frames"), fps=summary.get("fps"))
+                   frames=summary.get("frames"), fps=summary.get("fps"),
+                   settings_changed=_settings_changed(item, summary))
         if item.model and row["status"] == "ok":
             try:
                 row.update(_derive(item, summary))
@@ -622,6 +631,7 @@ def _table(rows: Iterable[Mapping[str, Any]]) -> pd.DataFrame:
     for col in ("n_gaps", "frames"):
         table[col] = pd.to_numeric(table[col], errors="coerce").astype("Int64")
     table["ambiguous"] = table["ambiguous"].astype("boolean")
+    table["settings_changed"] = table["settings_changed"].astype("boolean")
     table["reused"] = table["reused"].astype(bool)
     return table
 
@@ -705,11 +715,10 @@ def _exit_when_parent_dies(lifeline) -> None:
     os._exit(70)  # the batch is gone (e.g. kill -9): stop instead of working for nobody
 
 
-def _worker_main(conn, lifeline, item: BatchItem, out_dir: Path, force: bool,
-                 analyse: Callable | None) -> None:
+def _worker_main(conn, lifeline, item: BatchItem, out_dir: Path, options: dict) -> None:
     signal.signal(signal.SIGINT, signal.SIG_IGN)  # Ctrl-C is the parent's to handle
     threading.Thread(target=_exit_when_parent_dies, args=(lifeline,), daemon=True).start()
-    outcome = analyse_item(item, out_dir, force=force, analyse=analyse)
+    outcome = analyse_item(item, out_dir, **options)
     conn.send(outcome)
     conn.close()
 
@@ -746,8 +755,7 @@ def _worker_context():
     return ctx
 
 
-def _run_local(items: list[BatchItem], out_dir: Path, *, jobs: int, force: bool,
-               analyse: Callable | None, timeout_s: float | None,
+def _run_local(items: list[BatchItem], out_dir: Path, *, jobs: int, options: dict, timeout_s: float | None,
                finish: Callable[[BatchItem, dict], None]) -> None:
     """Analyse ``items`` with at most ``jobs`` worker processes, one fresh process per clip."""
     ctx = _worker_context()
@@ -760,7 +768,7 @@ def _run_local(items: list[BatchItem], out_dir: Path, *, jobs: int, force: bool,
                 receiver, sender = ctx.Pipe(duplex=False)
                 life_reader, life_writer = ctx.Pipe(duplex=False)
                 process = ctx.Process(target=_worker_main, name=f"fringecount-batch {item.name}",
-                                      args=(sender, life_reader, item, out_dir, force, analyse))
+                                      args=(sender, life_reader, item, out_dir, options))
                 process.start()
                 sender.close()
                 life_reader.close()
@@ -803,16 +811,16 @@ def _run_local(items: list[BatchItem], out_dir: Path, *, jobs: int, force: bool,
             run.close()
 
 
-def _run_inline(items: list[BatchItem], out_dir: Path, *, force: bool, analyse: Callable | None,
+def _run_inline(items: list[BatchItem], out_dir: Path, *, options: dict,
                 finish: Callable[[BatchItem, dict], None]) -> None:
     for item in items:
-        finish(item, analyse_item(item, out_dir, force=force, analyse=analyse))
+        finish(item, analyse_item(item, out_dir, **options))
 
 
 # --------------------------------------------------------------------------- Dask
 
-def _run_dask(items: list[BatchItem], out_dir: Path, *, address: Any, force: bool, connect_timeout_s: float,
-              analyse: Callable | None, finish: Callable[[BatchItem, dict], None]) -> None:
+def _run_dask(items: list[BatchItem], out_dir: Path, *, address: Any, connect_timeout_s: float, options: dict,
+              finish: Callable[[BatchItem, dict], None]) -> None:
     """Run each clip as one task on a Dask distributed cluster (scheduler at ``address``)."""
     try:
         from distributed import Client, as_completed
@@ -831,8 +839,7 @@ def _run_dask(items: list[BatchItem], out_dir: Path, *, address: Any, force: boo
     futures: dict[Any, BatchItem] = {}
     try:
         for item in items:
-            future = client.submit(analyse_item, item, out_dir, force=force, analyse=analyse,
-                                   pure=False, key=f"fringecount-batch-{item.result_name}-{os.getpid()}-"
+            future = client.submit(analyse_item, item, out_dir, **options, pure=False, key=f"fringecount-batch-{item.result_name}-{os.getpid()}-"
                                                    f"{time.time_ns()}")
             futures[future] = item
         with client.as_current():
@@ -885,7 +892,7 @@ class BatchReport:
 
 def run_batch(source: str | os.PathLike | list[BatchItem], out_dir: str | os.PathLike, *,
               settings: CountSettings | None = None, jobs: int | None = None, force: bool = False,
-              dask: Any = None, dask_timeout_s: float = 20.0, timeout_s: float | None = None,
+              report: bool = False, dask: Any = None, dask_timeout_s: float = 20.0, timeout_s: float | None = None,
               analyse: Callable | None = None,
               progress: Callable[[dict], None] | None = None,
               flush_every_s: float = 10.0) -> BatchReport:
@@ -908,6 +915,8 @@ def run_batch(source: str | os.PathLike | list[BatchItem], out_dir: str | os.Pat
         the clips one by one in this process, without that isolation (debugging).
     force : bool
         Re-analyse clips that already have a complete result (replacing it atomically).
+    report : bool
+        Also write each new result's ``report.png``/``report.html`` (as ``count --report``).
     dask : str or distributed.Client, optional
         Run on a Dask distributed cluster instead: the scheduler address
         (``tcp://host:8786``) or a connected client. Clips and ``out_dir`` must be
@@ -939,7 +948,8 @@ def run_batch(source: str | os.PathLike | list[BatchItem], out_dir: str | os.Pat
     -----
     Clips with a complete result (its ``summary.json`` exists) are skipped unless
     ``force``: their files are not touched and their rows are rebuilt from
-    ``summary.json`` (``reused`` is true, ``elapsed_s`` empty). Failed clips have
+    ``summary.json`` (``reused`` is true, ``elapsed_s`` empty; ``settings_changed``
+    is true when the result was made with other settings). Failed clips have
     no result folder, so a rerun tries them again. The table is written
     atomically, also when the batch is interrupted (rows of finished clips only).
     """
@@ -966,6 +976,7 @@ def run_batch(source: str | os.PathLike | list[BatchItem], out_dir: str | os.Pat
         names[item.result_name] = item.name
 
     out_dir.mkdir(parents=True, exist_ok=True)
+    options = {"force": force, "report": report, "analyse": analyse}
     rows: dict[str, dict] = {}
     order = {item.name: i for i, item in enumerate(items)}
     last_flush = time.monotonic()
@@ -1007,13 +1018,13 @@ def run_batch(source: str | os.PathLike | list[BatchItem], out_dir: str | os.Pat
         logger.info("%d clip(s) to analyse, %d already done", len(todo), len(items) - len(todo))
         try:
             if todo and dask is not None:
-                _run_dask(todo, out_dir, address=dask, force=force, connect_timeout_s=dask_timeout_s,
-                          analyse=analyse, finish=finish)
+                _run_dask(todo, out_dir, address=dask, connect_timeout_s=dask_timeout_s, options=options,
+                          finish=finish)
             elif todo and jobs == 0:
-                _run_inline(todo, out_dir, force=force, analyse=analyse, finish=finish)
+                _run_inline(todo, out_dir, options=options, finish=finish)
             elif todo:
-                _run_local(todo, out_dir, jobs=min(jobs, len(todo)), force=force, analyse=analyse,
-                           timeout_s=timeout_s, finish=finish)
+                _run_local(todo, out_dir, jobs=min(jobs, len(todo)), options=options, timeout_s=timeout_s,
+                           finish=finish)
         finally:
             if rows:
                 written = _write_table(current_table(), out_dir)

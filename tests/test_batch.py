@@ -99,7 +99,7 @@ def _write(path: Path, text: str) -> Path:
 def test_csv_manifest_per_clip_settings(tmp_path):
     manifest = _write(tmp_path / "m" / "runs.csv", (
         "# clips of the March campaign\n"
-        "path,fps,channel,frames,center,inner,outer,crop,saturation,fixed_center,wavelength_log,log_offset_s,"
+        "path,fps,channel,frames,center,inner,outer,crop,saturation,fixed_center,wavelengths,log_offset,"
         "model,params.thickness,params.angle\n"
         "a.avi,60,green,100:900:2,\"320.5,240\",5,200,\"0,0,640,480\",4000,yes,logs/a.csv,-1.5,"
         "plate-rotation,1.000+/-0.002mm,10deg\n"
@@ -151,7 +151,7 @@ params = { thickness = "2mm", wavelength = "543.5nm" }
     (".csv", "path,fsp\na.avi,30\n", "fsp"),
     (".csv", "path,params\na.avi,1\n", "params"),
     (".toml", "[[clip]]\npath = 'a.avi'\nroi = 3\n", "roi"),
-    (".toml", "[defaults]\nwavelenght_log = 'x.csv'\n[[clip]]\npath = 'a.avi'\n", "wavelenght_log"),
+    (".toml", "[defaults]\nwavelenghts = 'x.csv'\n[[clip]]\npath = 'a.avi'\n", "wavelenghts"),
     (".toml", "[[clips]]\npath = 'a.avi'\n", "clips"),
 ])
 def test_unknown_manifest_key_is_named(tmp_path, suffix, text, key):
@@ -208,7 +208,7 @@ def test_plan_batch_dispatches_and_reports_missing_source(tmp_path):
 # The "clips" here are small text files that tell the injected analysis what to do,
 # so each failure mode (bad clip, bug, worker crash, hang) happens on purpose.
 
-def _fake_result(total: float, clip: Path):
+def _fake_result(total: float, clip: Path, settings: CountSettings):
     from fringecount.pipeline import CountResult
 
     frames = pd.DataFrame({"frame": [0, 1], "time_s": [0.0, 0.1], "fringes": [0.0, total],
@@ -216,15 +216,15 @@ def _fake_result(total: float, clip: Path):
     gaps = pd.DataFrame(columns=["first_frame", "last_frame", "reason", "fringes_across",
                                  "fringes_across_sigma", "ambiguous"])
     summary = {"total_fringes": total, "total_fringes_sigma": 0.01, "frames": 2, "fps": 10.0,
-               "gaps": [], "clip": str(clip)}
-    return CountResult(frames=frames, gaps=gaps, summary=summary)
+               "gaps": [], "clip": str(clip), "settings": settings.to_dict()}
+    return CountResult(frames=frames, gaps=gaps, summary=summary, settings=settings)
 
 
 def scripted_analyse(clip, settings):
     """Analysis injected into the batch: the clip file says what happens."""
     kind, _, arg = Path(clip).read_text().strip().partition(" ")
     if kind == "ok":
-        return _fake_result(float(arg), clip)
+        return _fake_result(float(arg), clip, settings)
     if kind == "bad":
         raise ClipError(f"{Path(clip).name} is truncated after frame 3; export it again")
     if kind == "bug":
@@ -376,3 +376,15 @@ def test_cli_help_exits_0(capsys):
     with pytest.raises(SystemExit) as exc:
         main(["batch", "--help"])
     assert exc.value.code == 0 and "--dask" in capsys.readouterr().out
+
+
+@needs_core
+def test_reused_result_made_with_other_settings_is_flagged(tmp_path):
+    src = _archive(tmp_path / "src", {"a.avi": "ok 1.0"})
+    out = tmp_path / "out"
+    first = B.run_batch(src, out, jobs=0, analyse=scripted_analyse, settings=CountSettings(fps=30.0)).table
+    same = B.run_batch(src, out, jobs=0, analyse=scripted_analyse, settings=CountSettings(fps=30.0)).table
+    other = B.run_batch(src, out, jobs=0, analyse=scripted_analyse, settings=CountSettings(fps=60.0)).table
+    assert not first.loc[0, "reused"] and not first.loc[0, "settings_changed"]
+    assert same.loc[0, "reused"] and not same.loc[0, "settings_changed"]
+    assert other.loc[0, "reused"] and other.loc[0, "settings_changed"]  # kept, but flagged
