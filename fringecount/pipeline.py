@@ -28,7 +28,7 @@ import pandas as pd
 from . import __version__
 from .bridge import bridge_gaps, read_wavelength_log
 from .center import CenterFit, fringe_images, locate_center, refine_center
-from .errors import InputError, NoFringesError, SettingsError
+from .errors import ClipError, InputError, NoFringesError, SettingsError
 from .frames import FrameSource, open_frames
 from .gaps import describe, find_gaps, flag_frames, unwrap_segments
 from .phase import RadialModel, estimate_model, fit_phases, temporal_model
@@ -92,10 +92,16 @@ def _saturation_level(source: FrameSource, settings: CountSettings) -> float | N
 def _sample_frames(source: FrameSource, k: int = 24) -> tuple[np.ndarray, np.ndarray]:
     n = len(source)
     idx = np.unique(np.linspace(0, n - 1, min(k, n)).astype(int))
-    imgs = []
+    imgs, used = [], []
     for i in idx:
-        imgs.append(_as_float(source.get_frame(int(i))))
-    return idx, np.stack(imgs)
+        try:
+            imgs.append(_as_float(source.get_frame(int(i))))
+            used.append(int(i))
+        except ClipError as exc:  # one unreadable frame does not stop the analysis
+            logger.warning("skipping unreadable sample frame %d: %s", i, exc)
+    if len(imgs) < 2:
+        raise ClipError(f"fewer than 2 frames of {source.path} could be decoded; check the file")
+    return np.asarray(used), np.stack(imgs)
 
 
 def _crop_mask(shape, crop):
@@ -208,12 +214,17 @@ def _open(clip, settings: CountSettings) -> tuple[FrameSource, bool]:
     return src, True
 
 
-def _check_roi(geom: Geometry, shape, settings: CountSettings) -> None:
+def _check_roi(shape, settings: CountSettings) -> None:
+    """Reject an ROI that misses the frame before any work is done."""
     rows, cols = shape
     if settings.crop is not None:
         x0, y0, x1, y1 = settings.crop
-        if x0 >= cols or y0 >= rows:
-            raise SettingsError(f"crop {settings.crop} lies outside the {cols}x{rows} frame; choose --crop inside it")
+        if x0 >= cols or y0 >= rows or min(x1, cols) - x0 < 8 or min(y1, rows) - y0 < 8:
+            raise SettingsError(f"crop {tuple(settings.crop)} lies (almost) outside the {cols}x{rows} frame; "
+                                "choose --crop X0,Y0,X1,Y1 inside it")
+    if settings.center is not None:
+        ring_bins(shape, settings.center, inner_px=settings.inner_radius_px,
+                  outer_px=settings.outer_radius_px, crop=settings.crop)
 
 
 # ----------------------------------------------------------------------------- streaming pass
@@ -242,9 +253,12 @@ def _stream(source: FrameSource, bins_for_frame: Callable[[int], list[ProfileBin
     frames = np.zeros(n, int)
     times = np.zeros(n)
     got = 0
-    for k, fr in enumerate(source):
-        if k >= n:
-            break
+    positions = np.asarray(source.indices)
+    for fr in source:
+        # place each frame by its original number (a reader may skip an unreadable frame)
+        k = int(np.searchsorted(positions, fr.index))
+        if k >= n or positions[k] != fr.index:
+            continue
         blk = k // block_len
         bl = bins_for_frame(k)
         if stream is None:
@@ -259,14 +273,18 @@ def _stream(source: FrameSource, bins_for_frame: Callable[[int], list[ProfileBin
             pos = k % block_len
             if pos % max(1, block_len // 6) == 0 and len(block_samples[blk]) < 6:
                 block_samples[blk].append(_as_float(img))
-        got = k + 1
+        got += 1
         if progress is not None:
             progress(k + 1, n)
     if got == 0:
         raise InputError(f"no frame of {source.path} could be decoded; check the file (it may be corrupt)")
+    keep = stream.ok.copy()
     if got < n:
-        logger.warning("only %d of %d frames could be decoded; the clip looks truncated", got, n)
-    return stream, frames[:got], times[:got], got
+        logger.warning("only %d of %d frames could be decoded; the rest are left out", got, n)
+        stream.prof = [p[keep] for p in stream.prof]
+        stream.sat = stream.sat[keep]
+        stream.ok = stream.ok[keep]
+    return stream, frames[keep], times[keep], got
 
 
 def _drift_track(block_samples, geom: Geometry, settings: CountSettings, shape) -> tuple[np.ndarray, dict]:
@@ -278,8 +296,8 @@ def _drift_track(block_samples, geom: Geometry, settings: CountSettings, shape) 
             est.append((np.nan, np.nan, np.nan, np.nan))
             continue
         f = fringe_images(np.stack(samples))
-        r = refine_center(f[:, :, :], geom.center.xy, mask=mask, step_px=0.5,
-                          inner_px=settings.inner_radius_px, outer_px=settings.outer_radius_px)
+        r = refine_center(f, geom.center.xy, mask=mask, step_px=0.5, inner_px=settings.inner_radius_px,
+                          outer_px=settings.outer_radius_px, max_error_frames=0)
         est.append((r.x, r.y, r.x_err, r.y_err) if r else (np.nan, np.nan, np.nan, np.nan))
     est = np.asarray(est, float)
     ok = np.isfinite(est).all(axis=1)
@@ -345,9 +363,9 @@ def _count_open(source: FrameSource, settings: CountSettings, progress, t_start)
     shape = tuple(source.frame_shape)
     level = _saturation_level(source, settings)
     wlog = read_wavelength_log(settings.wavelength_log) if settings.wavelength_log else None
+    _check_roi(shape, settings)
     _, samples = _sample_frames(source)
     geom = _find_geometry(samples, settings)
-    _check_roi(geom, shape, settings)
     logger.info("geometry %s, centre/reference %s", geom.kind, geom.reference)
 
     delta = 0.5  # px: centre shift used to measure the count's sensitivity to the centre
@@ -393,7 +411,8 @@ def _count_open(source: FrameSource, settings: CountSettings, progress, t_start)
                 return cache[key]
 
             stream, frames, times, got = _stream(source, per_frame, level, None, block_len, None)
-            centers = np.column_stack([cx[:got], cy[:got]])
+            pos = np.searchsorted(np.asarray(source.indices), frames)
+            centers = np.column_stack([cx[pos], cy[pos]])
     nb0 = stream.bins[0]
     profiles = stream.prof[0][:got].astype(float)
     usable = np.isfinite(profiles).sum(axis=1) >= max(8, nb0.n_bins // 4)
@@ -626,6 +645,7 @@ def inspect_roi(clip, settings: CountSettings | None = None, *, frame: int | Non
         if not 0 <= k < n:
             raise SettingsError(f"--frame {k} is outside the clip (0..{n - 1})")
         shape = tuple(source.frame_shape)
+        _check_roi(shape, settings)
         _, samples = _sample_frames(source)
         geom = _find_geometry(samples, settings)
         img = source.get_frame(k)
