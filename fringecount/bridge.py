@@ -38,6 +38,7 @@ from __future__ import annotations
 import logging
 import math
 
+import numpy as np
 import pandas as pd
 
 from ._bridge._carry import (HOP_REASONS, HOP_Z, ONE_SIDED_DECIDED_SIGMA, P_DECIDED, SHORT_GAP_FRAMES,
@@ -45,10 +46,12 @@ from ._bridge._carry import (HOP_REASONS, HOP_Z, ONE_SIDED_DECIDED_SIGMA, P_DECI
 from ._bridge._inputs import (BridgeInputError, WavelengthLogError, check_gaps, check_log, check_track,
                               frame_time_s, gap_frame_count, read_log_csv, stretches_from_track)
 from ._bridge._rate import RATE_WINDOW_FRAMES
+from ._bridge._wavelog import solve_log
 
 __all__ = [
     "bridge_gaps",
     "read_wavelength_log",
+    "fit_group_opd",
     "BridgeInputError",
     "WavelengthLogError",
     "P_DECIDED",
@@ -125,9 +128,10 @@ def bridge_gaps(track: pd.DataFrame, gaps: pd.DataFrame, *, wavelength_log: pd.D
     hop_range_fringes : float
         Largest whole-fringe jump a suspected mode hop is assumed to hide when
         no log decides it (uniform prior; sigma grows by hop_range / sqrt(3)).
-    rng : numpy.random.Generator, optional
-        Accepted for interface stability; the present estimators are
-        deterministic and do not draw random numbers.
+    rng : numpy.random.Generator or int, optional
+        Random source for the sampled (Monte Carlo) log prediction used when the
+        group OPD is known only to worse than 5 %; ``None`` uses a fixed seed so
+        that results are reproducible. The rate carry draws no random numbers.
 
     Returns
     -------
@@ -191,6 +195,15 @@ def bridge_gaps(track: pd.DataFrame, gaps: pd.DataFrame, *, wavelength_log: pd.D
     .. [2] K. Itoh, "Analysis of the phase unwrapping algorithm", Appl. Opt.
        21(14), 2470 (1982).
     """
+    rows, _opd = _bridge_all(track, gaps, wavelength_log, log_offset_s, air_wavelengths, hop_range_fringes, rng)
+    added = pd.DataFrame(rows, columns=list(OUTPUT_COLUMNS)).astype({"ambiguous": bool, "hop_suspected": bool})
+    added.index = gaps.index
+    kept = gaps.drop(columns=[c for c in OUTPUT_COLUMNS if c in gaps.columns])
+    return pd.concat([kept, added], axis=1)
+
+
+def _bridge_all(track, gaps, wavelength_log, log_offset_s, air_wavelengths, hop_range_fringes, rng):
+    """Rows of output columns for every gap (in order) and the log's group OPD (or None)."""
     if not (isinstance(hop_range_fringes, (int, float)) and math.isfinite(hop_range_fringes)
             and hop_range_fringes >= 0):
         raise BridgeInputError(f"hop_range_fringes must be a finite number >= 0, got {hop_range_fringes!r}")
@@ -198,30 +211,65 @@ def bridge_gaps(track: pd.DataFrame, gaps: pd.DataFrame, *, wavelength_log: pd.D
     stretches = stretches_from_track(clean)
     specs = check_gaps(gaps, set(stretches))
     rows: list[dict] = []
-    log_rows: dict = {}
-    if wavelength_log is not None:
-        from ._bridge._wavelog import bridge_with_log
-
-        log_rows = bridge_with_log(stretches, specs, check_log(wavelength_log), log_offset_s=log_offset_s,
-                                   air_wavelengths=air_wavelengths)
-    for i, gap in enumerate(specs):
+    for gap in specs:
         before = stretches.get(gap.segment_before)
         after = stretches.get(gap.segment_after)
         if before is not None and after is not None:
             row = rate_row(before, after, reason=gap.reason,
                            gap_frames=gap_frame_count(clean, gap.first_frame, gap.last_frame),
                            hop_range_fringes=float(hop_range_fringes))
-            if i in log_rows:
-                row = log_rows[i](row)
         elif after is not None:
             row = edge_row(after, frame_time_s(clean, gap.first_frame, "first"), at_start=True)
         elif before is not None:
             row = edge_row(before, frame_time_s(clean, gap.last_frame, "last"), at_start=False)
         else:
             row = edge_row(None, math.nan, at_start=True)
-        logger.debug("gap %d..%d (%s): %s", gap.first_frame, gap.last_frame, gap.reason, row)
         rows.append(row)
-    added = pd.DataFrame(rows, columns=list(OUTPUT_COLUMNS)).astype({"ambiguous": bool, "hop_suspected": bool})
-    added.index = gaps.index
-    kept = gaps.drop(columns=[c for c in OUTPUT_COLUMNS if c in gaps.columns])
-    return pd.concat([kept, added], axis=1)
+    opd = None
+    if wavelength_log is not None:
+        rng = np.random.default_rng(0) if rng is None else np.random.default_rng(rng)
+        updates, opd = solve_log(stretches, specs, rows, check_log(wavelength_log),
+                                 log_offset_s=float(log_offset_s), air_wavelengths=bool(air_wavelengths),
+                                 rng=rng)
+        for i, update in updates.items():
+            rows[i].update(update)
+    for gap, row in zip(specs, rows):
+        logger.debug("gap %d..%d (%s): %s %.4f +- %.4f", gap.first_frame, gap.last_frame, gap.reason,
+                     row["method"], row["fringes_across"], row["fringes_across_sigma"])
+    return rows, opd
+
+
+def fit_group_opd(track: pd.DataFrame, gaps: pd.DataFrame, wavelength_log: pd.DataFrame, *,
+                  log_offset_s: float = 0.0, air_wavelengths: bool = False) -> tuple[float, float]:
+    """Group optical path difference D = dN/dsigma from a wavelength scan, with its 1-sigma.
+
+    Fits the wavemeter log against the fringe count in every stable stretch with one
+    common slope (see :func:`bridge_gaps`; stretches whose whole numbers the log
+    decides are joined, so D uses the count across those hops too).
+
+    Parameters
+    ----------
+    track, gaps, wavelength_log, log_offset_s, air_wavelengths
+        As for :func:`bridge_gaps`.
+
+    Returns
+    -------
+    group_opd_m, group_opd_sigma_m : float
+        D in m (signed: positive when the count grows with the vacuum wavenumber
+        sigma = 1/lambda_vac) and its 1-sigma in m. For a plate of thickness t in
+        a double-pass arm, D = 2 t (n_g - 1) plus 2 dL n_g,air for an arm
+        imbalance dL (REFERENCES 3b). With air wavelengths D is converted to
+        vacuum with the Ciddor index of standard lab air (20 C, 101.325 kPa,
+        50 %), whose uncertainty (3e-5) is included.
+
+    Raises
+    ------
+    WavelengthLogError
+        When the log does not cover the stretches or does not change the
+        wavelength inside any stretch (D undetermined).
+    """
+    _rows, opd = _bridge_all(track, gaps, wavelength_log, log_offset_s, air_wavelengths, 6.0, None)
+    if opd is None:
+        raise WavelengthLogError("the wavelength log does not determine the group OPD: no stable stretch shows "
+                                 "both a wavelength change and a fringe change; log a scan with continuous tuning")
+    return opd.group_opd_m, opd.group_opd_sigma_m

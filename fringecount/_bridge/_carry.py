@@ -72,7 +72,7 @@ def integer_row(row: dict, choice: IntegerChoice, sigma_meas: float) -> dict:
         row["fringes_across_sigma"] = sigma_meas
         row["ambiguous"] = False
     else:
-        row["fringes_across_sigma"] = math.hypot(choice.spread_sigma, sigma_meas)
+        row["fringes_across_sigma"] = math.hypot(choice.cover_sigma, sigma_meas)
         row["ambiguous"] = True
     return row
 

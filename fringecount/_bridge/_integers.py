@@ -17,7 +17,11 @@ import numpy as np
 from scipy import stats
 from scipy.special import logsumexp
 
-__all__ = ["IntegerChoice", "wrap_fraction", "choose_integer", "MAX_CANDIDATES"]
+__all__ = ["IntegerChoice", "wrap_fraction", "choose_integer", "choice_from_weights", "candidate_range",
+           "gaussian_logw", "MAX_CANDIDATES"]
+
+#: Probability inside +-3 sigma of a Gaussian.
+COVER_3SIGMA = 0.9973
 
 #: Cap on the number of integer candidates scored (beyond it the weights are flat anyway).
 MAX_CANDIDATES = 4001
@@ -42,6 +46,11 @@ class IntegerChoice:
     spread_sigma : float
         sqrt(sum_k p_k (k - k_chosen)**2): the spread of the candidates about the
         chosen one, in fringes.
+    cover_sigma : float
+        max(spread_sigma, h / 3), with h the smallest whole-fringe distance from the
+        chosen candidate that holds COVER_3SIGMA of the probability: a sigma whose
+        +-3 sigma interval holds as much as a Gaussian's, even for heavy-tailed
+        candidate distributions.
     candidates : str
         The three most probable candidates, ``"value (p); ..."``.
     """
@@ -52,12 +61,50 @@ class IntegerChoice:
     z: float
     total_sigma: float
     spread_sigma: float
+    cover_sigma: float
     candidates: str
 
 
 def wrap_fraction(x):
     """Map ``x`` (fringes) onto [-0.5, 0.5)."""
     return x - np.floor(np.asarray(x, dtype=float) + 0.5)
+
+
+def choice_from_weights(fraction: float, ks: np.ndarray, logw: np.ndarray, prediction: float,
+                        total_sigma: float) -> IntegerChoice:
+    """Pick the most probable of the candidates ``fraction + ks`` given their log-weights."""
+    logp = logw - logsumexp(logw)
+    p = np.exp(logp)
+    best = int(np.argmax(logp))
+    k = int(ks[best])
+    spread = math.sqrt(float(np.sum(p * (ks - k) ** 2)))
+    dist = np.abs(ks - k)
+    by_dist = np.bincount(dist, weights=p)
+    h = int(np.searchsorted(np.cumsum(by_dist), COVER_3SIGMA * float(np.sum(p))))
+    cover = max(spread, min(h, dist.max()) / 3.0)
+    order = np.argsort(-logp, kind="stable")[:3]
+    cands = "; ".join(f"{fraction + ks[i]:.3f} ({p[i]:.3g})" for i in order)
+    return IntegerChoice(k=k, value=float(fraction + k), p_chosen=float(p[best]),
+                         z=float((fraction + k - prediction) / total_sigma), total_sigma=total_sigma,
+                         spread_sigma=spread, cover_sigma=cover, candidates=cands)
+
+
+def candidate_range(fraction: float, low: float, high: float) -> np.ndarray:
+    """Integers k with ``fraction + k`` in [low, high] widened by two, capped at MAX_CANDIDATES."""
+    k0, k1 = math.floor(low - fraction) - 2, math.ceil(high - fraction) + 2
+    if k1 - k0 + 1 > MAX_CANDIDATES:
+        mid = (k0 + k1) // 2
+        k0, k1 = mid - MAX_CANDIDATES // 2, mid + MAX_CANDIDATES // 2
+    return np.arange(k0, k1 + 1)
+
+
+def gaussian_logw(fraction: float, ks: np.ndarray, prediction: float, total_sigma: float,
+                  dof: float = math.inf) -> np.ndarray:
+    """Log predictive density of each candidate (Gaussian, or Student-t on ``dof``)."""
+    r = (fraction + ks - prediction) / total_sigma
+    if math.isinf(dof):
+        return -0.5 * r ** 2
+    return stats.t.logpdf(r, df=max(dof, 1.0))
 
 
 def choose_integer(fraction: float, prediction: float, prediction_sigma: float, measure_sigma: float,
@@ -81,21 +128,6 @@ def choose_integer(fraction: float, prediction: float, prediction_sigma: float, 
     IntegerChoice
     """
     total = math.hypot(prediction_sigma, measure_sigma)
-    k0 = int(round(prediction - fraction))
-    half = int(min((MAX_CANDIDATES - 1) // 2, math.ceil(8.0 * total) + 2))
-    ks = np.arange(k0 - half, k0 + half + 1)
-    resid = fraction + ks - prediction
-    if math.isinf(dof):
-        logp = -0.5 * (resid / total) ** 2
-    else:
-        logp = stats.t.logpdf(resid / total, df=max(dof, 1.0))
-    logp = logp - logsumexp(logp)
-    p = np.exp(logp)
-    best = int(np.argmax(p))
-    k = int(ks[best])
-    spread = math.sqrt(float(np.sum(p * (ks - k) ** 2)))
-    order = np.argsort(-logp, kind="stable")[:3]
-    cands = "; ".join(f"{fraction + ks[i]:.3f} ({p[i]:.3g})" for i in order)
-    return IntegerChoice(k=k, value=float(fraction + k), p_chosen=float(p[best]),
-                         z=float((fraction + k - prediction) / total), total_sigma=total,
-                         spread_sigma=spread, candidates=cands)
+    reach = 8.0 * total * (1.0 if math.isinf(dof) else 3.0)
+    ks = candidate_range(fraction, prediction - reach, prediction + reach)
+    return choice_from_weights(fraction, ks, gaussian_logw(fraction, ks, prediction, total, dof), prediction, total)
