@@ -139,6 +139,8 @@ def test_missing_file_and_empty_folder(capsys, tmp_path):
     assert_clean_failure(*run_cli(capsys, ["count", str(tmp_path / "empty"), "--fps", "30", "--quiet"])[::2])
 
 
+@pytest.mark.xfail(strict=True, reason="count skips an undecodable image without a gap or a note in the "
+                                        "result (reported to the pipeline owner)")
 def test_folder_with_one_bad_image(capsys, tmp_path):
     import cv2
 
@@ -148,9 +150,13 @@ def test_folder_with_one_bad_image(capsys, tmp_path):
         cv2.imwrite(str(folder / f"img_{k:03d}.png"), frame)
     (folder / "img_007.png").write_bytes(b"\x89PNG\r\n\x1a\n" + os.urandom(64))  # a damaged frame
     code, _, err = run_cli(capsys, ["count", str(folder), "--fps", "30", "--out", str(tmp_path / "r"), "--quiet"])
-    if code == 0:  # a reader may treat the damaged frame as a gap; then it must say so
+    if code == 0:  # analysing around the damaged frame is fine if the result says so
         summary = json.loads((tmp_path / "r" / "summary.json").read_text())
-        assert summary["gaps"], "a damaged frame was analysed as if it were fine"
+        frames = pd.read_csv(tmp_path / "r" / "frames.csv")
+        flagged = (any(g["first_frame"] <= 7 <= g["last_frame"] for g in summary["gaps"])
+                   or 7 in summary.get("clip_metadata", {}).get("unreadable", [])
+                   or (7 in set(frames["frame"]) and not frames.set_index("frame").loc[7, "trusted"]))
+        assert flagged, "a damaged frame was left out without a trace in the result"
     else:
         assert_clean_failure(code, err)
         assert "img_007.png" in err
@@ -178,11 +184,20 @@ def test_npy_with_pickled_objects_is_not_loaded(capsys, tmp_path):
 
 # --------------------------------------------------------------------------- absurd settings
 
+# Seen on the 96 x 96 clip: the pipeline ignores --inner when it finds the centre itself
+# (summary roi.inner_px is 0) and counts an annulus that lies wholly outside the frame.
+_ANNULUS_OFF_FRAME = pytest.mark.xfail(
+    strict=True, reason="count accepts an annulus wholly outside the frame (reported to the pipeline owner)")
+
+
 @pytest.mark.parametrize("options", [
     ["--fps", "0"], ["--fps", "-30"], ["--fps", "nan"], ["--fps", "inf"], ["--fps", "1e12"],
-    ["--center", "5000,5000"], ["--center", "-40,20"], ["--center", "nan,3"], ["--center", "1,2,3"],
-    ["--outer", "0"], ["--inner", "-3"], ["--inner", "500", "--outer", "600"],
-    ["--crop", "0,0,10000,10000"], ["--crop", "90,90,95,95"], ["--crop", "10,10,5,5"],
+    # A centre a little off the frame is legitimate (arcs of rings); these are far off it.
+    ["--center", "5000,5000"], ["--center=-3000,20"], ["--center", "nan,3"], ["--center", "1,2,3"],
+    ["--outer", "0"], ["--inner", "-3"],
+    pytest.param(["--inner", "500", "--outer", "600"], marks=_ANNULUS_OFF_FRAME),
+    # A crop larger than the frame is clipped to it (lenient by design); these miss it.
+    ["--crop", "200,200,300,300"], ["--crop", "90,90,95,95"], ["--crop", "10,10,5,5"],
     ["--frames", "500:900"], ["--frames", "9:3"], ["--frames", "0:10:0"], ["--frames", "a:b"],
     ["--saturation", "0"],
 ], ids=lambda o: " ".join(o))
@@ -199,7 +214,7 @@ def test_absurd_settings(capsys, tmp_path, good_npy, options):
        y=st.floats(allow_nan=False, allow_infinity=False, min_value=-1e6, max_value=1e6),
        outer=st.one_of(st.none(), st.floats(min_value=0.5, max_value=1e6)))
 def test_any_center_and_radius_ends_cleanly(capsys, tmp_path, good_npy, x, y, outer):
-    argv = ["count", str(good_npy), "--fps", "30", "--center", f"{x},{y}", "--out", str(tmp_path / "r"),
+    argv = ["count", str(good_npy), "--fps", "30", f"--center={x},{y}", "--out", str(tmp_path / "r"),
             "--force", "--quiet"]
     if outer is not None:
         argv += ["--outer", repr(outer)]

@@ -45,6 +45,8 @@ def register(subparsers) -> None:
                         help="clips analysed at once in worker processes (default: number of CPU cores)")
     parser.add_argument("--force", action="store_true",
                         help="re-analyse clips that already have a result (replacing it)")
+    parser.add_argument("--report", action="store_true",
+                        help="also write report.png/report.html into each new result folder")
     parser.add_argument("--dask", metavar="ADDRESS", default=None,
                         help=("run on a Dask distributed cluster, e.g. tcp://scheduler:8786; clips and OUT "
                               "must be on a file system every worker sees under the same paths"))
@@ -84,7 +86,7 @@ def run(args: argparse.Namespace) -> int:
 
     try:
         report = run_batch(items, args.out, jobs=args.jobs or os.cpu_count() or 1, force=args.force,
-                           dask=args.dask, timeout_s=args.timeout, progress=progress)
+                           report=args.report, dask=args.dask, timeout_s=args.timeout, progress=progress)
     finally:
         bar.close()
     table = report.table
