@@ -927,7 +927,9 @@ def render_roi(inspection) -> RoiFigure:
     if math.isfinite(cx) and math.isfinite(cy):
         _circle(ax, (cx, cy), inner, edgecolor=sky, linewidth=1.6)
         _circle(ax, (cx, cy), outer, edgecolor=sky, linewidth=1.6)
-        handles.append(Line2D([], [], color=sky, linewidth=1.6, label="annulus in use"))
+        whole = (inner is None or inner <= 0) and outer is None
+        handles.append(Line2D([], [], color=sky, linewidth=1.6,
+                              label="annulus in use" + (" (whole frame)" if whole else "")))
         s_in, s_out = suggested.get("inner"), suggested.get("outer")
         if s_in is not None or s_out is not None:
             _circle(ax, (cx, cy), s_in, edgecolor=orange, linewidth=1.4, linestyle="--")

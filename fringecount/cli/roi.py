@@ -38,7 +38,7 @@ def register(subparsers) -> argparse.ArgumentParser:
     )
     parser.add_argument("clip", metavar="CLIP", help="recording: video file, TIFF stack or image folder")
     parser.add_argument("--frame", metavar="N", type=int, default=None,
-                        help="frame to inspect (0-based; default: one chosen from the clip)")
+                        help="frame to inspect, 0-based within the --frames range (default: its middle)")
     parser.add_argument("--image", metavar="FILE.png", default=None,
                         help="write the frame with the centre, the annuli, masked and saturated pixels "
                              "and the radial profile (replaced if it exists)")
