@@ -187,11 +187,12 @@ def ring_contrast(images: np.ndarray, center: tuple[float, float], *, mask=None,
 
 def refine_center(images: np.ndarray, start: tuple[float, float], *, mask=None,
                   n_bins: int | None = None, step_px: float = 2.0, inner_px: float = 0.0,
-                  outer_px: float | None = None) -> CenterFit | FailedFit:
+                  outer_px: float | None = None, max_error_frames: int = 4) -> CenterFit | FailedFit:
     """Maximise the azimuthally averaged fringe contrast, starting from ``start`` (x, y).
 
-    The 1-sigma error comes from the scatter of the per-frame optima (or, for a
-    single image, from the curvature of the contrast around its maximum).
+    The 1-sigma error comes from the scatter of the optima of up to
+    ``max_error_frames`` single frames (or, with fewer than 3, from the curvature
+    of the contrast around its maximum).
     """
     imgs = np.asarray(images, dtype=np.float32)
     if imgs.ndim == 2:
@@ -203,20 +204,20 @@ def refine_center(images: np.ndarray, start: tuple[float, float], *, mask=None,
 
     def best(evaluator, x0):
         res = optimize.minimize(lambda p: -evaluator(p[0], p[1]), x0, method="Nelder-Mead",
-                                options={"xatol": 0.005, "fatol": 1e-7, "maxiter": 400,
+                                options={"xatol": 0.01, "fatol": 1e-7, "maxiter": 200,
                                          "initial_simplex": [x0, x0 + [step_px, 0], x0 + [0, step_px]]})
         return res.x, -res.fun
 
     xy, c = best(ev, np.asarray(start, float))
     if not np.all(np.isfinite(xy)) or c <= 0:
         return FailedFit("fringe contrast vanished around the start point")
-    if k >= 3:
+    if k >= 3 and max_error_frames >= 3:
         per = []
-        for j in range(k):
+        for j in np.linspace(0, k - 1, min(k, max_error_frames)).astype(int):
             evj = _ContrastEvaluator(imgs[j:j + 1], mask, nb, inner_px, outer_px)
             per.append(best(evj, xy)[0])
         per = np.asarray(per)
-        err = per.std(axis=0, ddof=1) / math.sqrt(k)
+        err = per.std(axis=0, ddof=1) / math.sqrt(len(per))
     else:
         err = _curvature_error(ev, xy, c, npix)
     return CenterFit(float(xy[0]), float(xy[1]), float(max(err[0], 1e-3)), float(max(err[1], 1e-3)),
