@@ -31,6 +31,22 @@ whole-fringe prior over +-``hop_range_fringes`` added in quadrature
 1-2 frame dip with the phase back exactly where the rate puts it is taken as a
 blur. Any gap (whatever its reason) whose phase returns more than ``HOP_Z``
 sigma from the rate prediction gets the same hop prior.
+
+With a wavelength log
+---------------------
+Gaps between two stable stretches are bridged by the log (see
+``fringecount._bridge._wavelog`` for the model): one group OPD common to all
+stretches, the log regressed on the fringe count, decided hops joined and the
+fit repeated, each remaining gap scored on its marginal predictive
+distribution. Undecided gaps are ``ambiguous`` and their sigma covers the
+candidates (at least the rms spread, and +-3 sigma holding 99.73 % of the
+candidates' probability); because they share the fitted D, their sigmas are
+scaled so that the root-sum-square covers their sum. Gaps at the clip
+start/end are always extrapolated from the fringe rate.
+
+Laser safety: a wavelength scan uses a laser diode; follow local rules and your
+laser safety officer (beam enclosures, eyewear rated for the wavelength, no
+direct viewing, camera instead of eye at the output).
 """
 
 from __future__ import annotations

@@ -411,3 +411,17 @@ def test_log_without_tuning_cannot_give_group_opd():
         fit_group_opd(track, gaps, log)
     out = bridge_gaps(track, gaps, wavelength_log=log)
     assert (out["method"] == "rate").all() and out["ambiguous"].all()
+
+
+def test_sampled_prediction_is_reproducible_and_rng_explicit():
+    # The coarse log takes the sampled (Monte Carlo) branch: rng=None must give identical results run to run;
+    # another generator moves p_chosen only by sampling noise, sd sqrt(p (1 - p) / 20000) < 0.004, so the
+    # 0.05 tolerance is over 10 sd.
+    rng = np.random.default_rng(14)
+    true, track, gaps, log, _lam = scan(rng, log_noise_nm=0.03, log_every_s=2.0)
+    a = bridge_gaps(track, gaps, wavelength_log=log)
+    b = bridge_gaps(track, gaps, wavelength_log=log)
+    pd.testing.assert_frame_equal(a, b)
+    c = bridge_gaps(track, gaps, wavelength_log=log, rng=np.random.default_rng(99))
+    np.testing.assert_allclose(c["p_chosen"], a["p_chosen"], atol=0.05)
+    assert (c["method"] == "wavelength_log").all()

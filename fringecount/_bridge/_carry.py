@@ -110,7 +110,8 @@ def rate_row(before: Stretch | None, after: Stretch | None, *, reason: str, gap_
     notes = []
     if inconsistent:
         notes.append(f"phase returned {choice.z:+.1f} sigma from the rate prediction: possible mode hop")
-    if reason in HOP_REASONS and not (gap_frames <= SHORT_GAP_FRAMES and tight):
+    hop_reason = any(r in reason for r in HOP_REASONS)  # also "low_visibility+saturated" etc.
+    if hop_reason and not (gap_frames <= SHORT_GAP_FRAMES and tight):
         notes.append("visibility collapsed: a mode hop by whole fringes cannot be excluded without a "
                      "wavelength log")
     if notes:

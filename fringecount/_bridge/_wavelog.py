@@ -13,18 +13,30 @@ whole numbers K_s are already known (weighted least squares; without a
 ``wavelength_sigma_nm`` column the log noise is estimated from the pooled
 residuals and the predictive distribution is Student-t on those degrees of
 freedom). Across a gap between groups the predicted count change is
-``(sigma_after - sigma_before) / b`` at the two edge frames, with the fit
-covariance propagated to first order. The integer is chosen among the
+``(sigma_after - sigma_before) / b`` at the two edge frames: linearised with the
+fit covariance while D is known to 5 %, otherwise sampled from the fitted
+parameters (multivariate normal or t), so that a poorly known D gives the
+skewed, heavy-tailed prediction it should. The integer is chosen among the
 candidates ``fraction + k`` (method of exact fractions, Benoit 1898). Gaps whose
 integer is decided with p >= P_MERGE merge their two groups (the whole numbers
 are then known) and the fit is repeated, so that D and the remaining intercepts
 use all the stretches jointly. Given the joint fit, gaps are scored one at a
-time (their marginal predictive distributions); the correlation between two
-gaps that share a stretch is not used for the choice.
+time (their marginal predictive distributions); the correlation between gaps is
+not used for the choice. It is used for the sigmas: undecided gaps share the
+fitted D, so their errors add coherently, and their sigmas are scaled so that
+the root-sum-square the pipeline forms covers their sum.
 
-Where the gap is not suspected of a hop by the rate carry (a ``dark`` gap whose
-phase returns where the rate puts it), the rate prediction is an independent
-second opinion and is combined with the log's by inverse-variance weighting.
+Where the rate carry trusts the gap (no hop suspected: e.g. a ``dark`` gap whose
+phase returns where the rate puts it) and its prediction agrees with the log's,
+the rate is an independent second opinion: its Gaussian weight multiplies the
+log's weight of every candidate. Across a suspected hop the rate says nothing
+about the whole number and the log decides alone.
+
+Fallbacks (the rate carry's result is kept, with a note): a stretch next to the
+gap that has no reading although the log spans it (too short for the logging
+interval); a log that shows no wavelength change inside the stretches, so that D
+is not determined (slope zero within 2 sigma). A log whose time span misses a
+stretch next to a gap is an error (wrong file or log_offset_s).
 """
 
 from __future__ import annotations
