@@ -337,6 +337,21 @@ def _summary_lines(result, labels: Sequence[str]) -> tuple[list[str], list[str]]
     return left, right
 
 
+def _scale_to_trusted(ax, values: np.ndarray, trusted: np.ndarray) -> None:
+    """Scale the y axis to the trusted frames; say so when untrusted ones run off it."""
+    good = values[trusted & np.isfinite(values)]
+    allv = values[np.isfinite(values)]
+    if good.size < 2 or allv.size == 0:
+        return
+    lo, hi = float(good.min()), float(good.max())
+    pad = 0.15 * (hi - lo) if hi > lo else max(abs(hi), 1e-12) * 0.5
+    lo, hi = lo - pad, hi + pad
+    if allv.min() < lo or allv.max() > hi:
+        ax.set_ylim(lo, hi)
+        ax.text(1.0, 1.02, "scaled to the trusted frames; untrusted ones run off the scale",
+                transform=ax.transAxes, ha="right", va="bottom", fontsize=7)
+
+
 def _cumulative_sigma(frames, gaps) -> np.ndarray:
     """1-sigma of the count at each frame relative to the first: frame noise and the gaps so far.
 
@@ -599,7 +614,9 @@ def render_report(result, *, clip: str | os.PathLike | None = None) -> ReportFig
     time_axes.append(ax_res)
     _style_axes(ax_res, PANEL_RESIDUAL)
     _shade_gaps(ax_res, spans, reasons, styles, alpha=GAP_TINT * 2 / 3)
-    ax_res.plot(t, _column(frames, "residual"), color=blue, linewidth=1.0)
+    residual = _column(frames, "residual")
+    ax_res.plot(t, residual, color=blue, linewidth=1.0)
+    _scale_to_trusted(ax_res, residual, trusted)
     ax_res.set_ylabel("residual", fontsize=9)
     panels.append(PANEL_RESIDUAL)
 
@@ -609,7 +626,12 @@ def render_report(result, *, clip: str | os.PathLike | None = None) -> ReportFig
     _shade_gaps(ax_drift, spans, reasons, styles, alpha=GAP_TINT * 2 / 3)
     cx, cy = _column(frames, "center_x"), _column(frames, "center_y")
     ref = trusted & np.isfinite(cx) & np.isfinite(cy)
-    if ref.any():
+    if summary.get("geometry") == "straight":
+        ax_drift.text(0.5, 0.5, "straight fringes: no ring centre to follow", ha="center", va="center",
+                      transform=ax_drift.transAxes, fontsize=8,
+                      bbox=dict(facecolor="white", edgecolor="none", alpha=0.9, pad=2))
+        ax_drift.set_yticks([])
+    elif ref.any():
         ax_drift.plot(t, cx - np.median(cx[ref]), color=blue, linewidth=1.0, label="x (column)")
         ax_drift.plot(t, cy - np.median(cy[ref]), color="black", linewidth=1.0, linestyle="--",
                       label="y (row)")
@@ -677,7 +699,7 @@ def render_report(result, *, clip: str | os.PathLike | None = None) -> ReportFig
             lo, hi = _value_range(grey, image.dtype)
             small, factor = _downsample(grey, _THUMB_PX)
             ax.imshow(small, cmap="gray", vmin=lo, vmax=hi, interpolation="nearest")
-            if by_frame is not None and k in by_frame.index:
+            if by_frame is not None and k in by_frame.index and summary.get("geometry") != "straight":
                 x0 = _first_float(by_frame, k, "center_x")
                 y0 = _first_float(by_frame, k, "center_y")
                 if math.isfinite(x0) and math.isfinite(y0):
@@ -690,7 +712,9 @@ def render_report(result, *, clip: str | os.PathLike | None = None) -> ReportFig
             head.text(1.0, 1.02, f"the {len(chosen)} longest of {len(gaps)} gaps", ha="right",
                       va="bottom", fontsize=7, transform=head.transAxes)
         else:
-            head.text(1.0, 1.02, "coloured border: inside the gap; + : centre found", ha="right",
+            hint = "coloured border: inside the gap" + (
+                "" if summary.get("geometry") == "straight" else "; + : centre found")
+            head.text(1.0, 1.02, hint, ha="right",
                       va="bottom", fontsize=7, transform=head.transAxes)
     for note in notes:
         logger.info("report: %s", note)
@@ -916,6 +940,7 @@ def render_roi(inspection) -> RoiFigure:
     ax.set_ylabel("y (row, px)", fontsize=8)
 
     cx, cy = (float(v) for v in inspection.center)
+    geometry = getattr(inspection, "geometry", "")
     roi = getattr(inspection, "roi", None)
     if isinstance(roi, dict):
         inner, outer, crop = roi.get("inner"), roi.get("outer"), roi.get("crop")
@@ -941,7 +966,8 @@ def render_roi(inspection) -> RoiFigure:
                 path_effects=outline)
         handles.append(Line2D([], [], marker="+", linestyle="none", markersize=10, markeredgewidth=1.6,
                               color=OKABE_ITO["yellow"], path_effects=outline,
-                              label=f"centre x = {cx:.2f}, y = {cy:.2f} px"))
+                              label=f"{'reference point' if geometry == 'straight' else 'centre'} "
+                                    f"x = {cx:.2f}, y = {cy:.2f} px"))
     for box, style, label in ((crop, "-", "crop in use"), (suggested.get("crop"), "--", "suggested crop")):
         if box is not None:
             x0, y0, x1, y1 = box
@@ -954,7 +980,6 @@ def render_roi(inspection) -> RoiFigure:
     fig.legend(handles=handles, loc="lower center", ncols=3, fontsize=7, frameon=False,
                bbox_to_anchor=(0.5, 0.0))
     frame_index = getattr(inspection, "frame_index", None)
-    geometry = getattr(inspection, "geometry", "")
     ax.set_title(f"{PANEL_ROI_FRAME}: frame {frame_index}, {geometry}", loc="left", fontsize=9,
                  fontweight="bold")
     panels = [PANEL_ROI_FRAME]

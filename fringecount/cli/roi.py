@@ -49,6 +49,10 @@ def register(subparsers) -> argparse.ArgumentParser:
     return parser
 
 
+#: Width of the label column of the text output.
+_LABEL_WIDTH = 17
+
+
 def _number(value: float) -> str:
     """Pixels rounded to 0.1 px, printed without trailing zeros."""
     return f"{round(float(value), 1):g}"
@@ -144,20 +148,22 @@ def _text(args, inspection, options: list[str]) -> str:
     (cx, cy), (sx, sy) = inspection.center, inspection.center_sigma
     r_in, r_out = inspection.radius_range_px
     straight = inspection.geometry == "straight"
-    lines = [
-        f"frame            {d['frame']}",
-        f"geometry         {inspection.geometry}",
-        f"centre           x = {_fmt(cx, '.2f')} ± {_fmt(sx, '.2f')} px, "
-        f"y = {_fmt(cy, '.2f')} ± {_fmt(sy, '.2f')} px",
-        f"usable {'range ' if straight else 'radius'}    {_fmt(r_in, '.1f')} to {_fmt(r_out, '.1f', ' px')}",
-        f"{'fringe' if straight else 'ring'} spacing     {_fmt(inspection.ring_spacing_px, '.2f', ' px')}"
-        + ("" if straight else " near the outer edge"),
-        f"visibility       {_fmt(inspection.visibility, '.3f')}",
-        f"saturated        {_fmt(100 * inspection.saturated_fraction, '.2f', ' %')} of the pixels in the ROI",
-        f"suggested ROI    {shlex.join(options) if options else '(no options needed)'}",
-        "",
-        "count with:      " + shlex.join(["fringecount", "count", args.clip] + options),
+    rows = [
+        ("frame", f"{d['frame']}"),
+        ("geometry", f"{inspection.geometry}"),
+        ("reference point" if straight else "centre",
+         f"x = {_fmt(cx, '.2f')} ± {_fmt(sx, '.2f')} px, y = {_fmt(cy, '.2f')} ± {_fmt(sy, '.2f')} px"),
+        ("usable range" if straight else "usable radius",
+         f"{_fmt(r_in, '.1f')} to {_fmt(r_out, '.1f', ' px')}" + (" across the fringes" if straight else "")),
+        ("fringe spacing" if straight else "ring spacing",
+         _fmt(inspection.ring_spacing_px, ".2f", " px") + ("" if straight else " near the outer edge")),
+        ("visibility", _fmt(inspection.visibility, ".3f")),
+        ("saturated", f"{_fmt(100 * inspection.saturated_fraction, '.2f', ' %')} of the pixels in the ROI"),
+        ("suggested ROI", shlex.join(options) if options else "(no options needed)"),
     ]
+    width = _LABEL_WIDTH
+    lines = [f"{label:<{width}}{value}" for label, value in rows]
+    lines += ["", f"{'count with:':<{width}}" + shlex.join(["fringecount", "count", args.clip] + options)]
     return "\n".join(lines)
 
 
@@ -181,5 +187,5 @@ def run(args: argparse.Namespace) -> int:
         return 0
     print(_text(args, inspection, options))
     if written is not None and not args.quiet:
-        print(f"picture          {written}")
+        print(f"{'picture':<{_LABEL_WIDTH}}{written}")
     return 0
