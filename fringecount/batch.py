@@ -369,6 +369,8 @@ def _item_from_entry(entry: Mapping[str, Any], base: CountSettings, base_dir: Pa
     if params and model is None:
         raise SettingsError(f"{where}: model parameters {', '.join(params)} given without a model; "
                             "add a 'model' key or remove the params")
+    if model is not None:
+        _check_model(model, params, where)
     changes = _settings_changes({k: v for k, v in entry.items()
                                  if k not in ("path", "model") and not k.startswith("params.")},
                                 base_dir, where)
@@ -377,6 +379,16 @@ def _item_from_entry(entry: Mapping[str, Any], base: CountSettings, base_dir: Pa
     except InputError as exc:
         raise SettingsError(f"{where}: {exc}") from None
     return BatchItem(clip, name, settings, model, params)
+
+
+def _check_model(model: str, params: Mapping[str, Any], where: str) -> None:
+    """Fail early on an unknown model or parameter name (values are checked per clip)."""
+    from .models import ParamReader
+
+    try:
+        ParamReader(model, params, prefix="params.")
+    except InputError as exc:
+        raise SettingsError(f"{where}: {_one_line(exc)}") from None
 
 
 def _flatten_params(entry: Mapping[str, Any], where: str) -> dict[str, Any]:
@@ -562,13 +574,10 @@ def analyse_item(item: BatchItem, out_dir: str | os.PathLike, *, force: bool = F
 # --------------------------------------------------------------------------- rows and table
 
 def _derive(item: BatchItem, summary: Mapping[str, Any]) -> dict[str, Any]:
-    """Derived-quantity columns for a clip with a model (none while no model is callable by name)."""
-    from . import models
+    """Derived-quantity columns for a clip with a model: value, 1-sigma and unit of each quantity."""
+    from .models import derive_by_name
 
-    derive = getattr(models, "derive_by_name", None)
-    if derive is None:
-        return {}
-    measurements = derive(item.model, summary, **dict(item.model_params))
+    measurements = derive_by_name(item.model, summary, **dict(item.model_params))
     columns: dict[str, Any] = {}
     for quantity, m in measurements.items():
         columns[f"derived_{quantity}"] = m.value

@@ -19,6 +19,8 @@ import json
 import os
 import sys
 
+import pandas as pd
+
 from ..batch import run_batch
 from ..errors import InputError
 from ._options import add_clip_arguments, add_roi_arguments, settings_from_args
@@ -65,6 +67,13 @@ def _progress_bar(total: int, quiet: bool):
                 desc="batch", leave=True)
 
 
+def _plain(value):
+    """A table cell as a plain JSON value (full float precision, missing as null)."""
+    if value is None or (not isinstance(value, str) and pd.isna(value)):
+        return None
+    return value.item() if hasattr(value, "item") else value
+
+
 def run(args: argparse.Namespace) -> int:
     """Run the batch described by ``args``; return 0 (all ok) or 1 (some clips failed)."""
     from ..batch import plan_batch
@@ -91,7 +100,7 @@ def run(args: argparse.Namespace) -> int:
         bar.close()
     table = report.table
     if args.json:
-        rows = json.loads(table.to_json(orient="records"))
+        rows = [{key: _plain(value) for key, value in row.items()} for row in table.to_dict(orient="records")]
         print(json.dumps({"out": str(report.out_dir), "clips": len(table), "ok": report.n_ok,
                           "failed": report.n_failed, "tables": [str(p) for p in report.written],
                           "rows": rows}, indent=2))
