@@ -745,6 +745,13 @@ def _html_page(result, png: bytes, png_name: str, drawn: ReportFigure) -> str:
                 label, int(g["first_frame"]), int(g["last_frame"]),
                 f"{float(g['start_s']):.3f}", f"{float(g['stop_s']):.3f}", reason_label(g["reason"]), across,
                 g.get("method", ""), "yes" if _is_true(g.get("ambiguous", False)) else "no")) + "</tr>")
+    gap_notes = ""
+    if "note" in gaps.columns:
+        items = [f"<li><strong>{esc(label)}</strong>: {esc(str(n))}</li>"
+                 for label, n in zip(drawn.gap_labels, gaps["note"]) if isinstance(n, str) and n.strip()]
+        gap_notes = f"<ul class=\"notes\">{''.join(items)}</ul>" if items else ""
+    clip = summary.get("clip") or ""
+    recording = f"<p>Recording: <code>{esc(Path(str(clip)).name)}</code></p>" if clip else ""
     gap_table = ("<p>No untrusted intervals.</p>" if not rows else
                  "<table><thead><tr><th>gap</th><th>first frame</th><th>last frame</th><th>start (s)</th>"
                  "<th>stop (s)</th><th>reason</th><th>fringes across</th><th>method</th><th>ambiguous</th>"
@@ -765,14 +772,17 @@ img {{ width: 100%; height: auto; border: 1px solid #ccc; }}
 table {{ border-collapse: collapse; font-size: 0.9rem; }}
 td, th {{ border: 1px solid #bbb; padding: 0.2rem 0.5rem; text-align: right; }}
 th {{ background: #eee; }}
+ul.notes {{ font-size: 0.9rem; }}
 </style>
 </head>
 <body>
 <h1>fringecount report</h1>
 <p><strong>Total count: {esc(total)}</strong> over {esc(str(summary.get('frames', len(result.frames))))} frames
 (fringecount {esc(str(summary.get('version', __version__)))}).</p>
+{recording}
 <h2>Untrusted intervals</h2>
 {gap_table}
+{gap_notes}
 {f'<ul>{notes}</ul>' if notes else ''}
 <h2>Page</h2>
 <p><img src="data:image/png;base64,{data}" alt="Report page: cumulative fringe count, visibility, fit residual and centre drift against time, with the untrusted intervals shaded"></p>
