@@ -29,8 +29,11 @@ whole-fringe prior over +-``hop_range_fringes`` added in quadrature
 :data:`SHORT_GAP_FRAMES` analysed frames and the rate prediction is tight
 (chosen integer at p >= :data:`P_DECIDED` and within :data:`HOP_Z` sigma): a
 1-2 frame dip with the phase back exactly where the rate puts it is taken as a
-blur. Any gap (whatever its reason) whose phase returns more than ``HOP_Z``
-sigma from the rate prediction gets the same hop prior.
+blur. A ``"too_fast"`` gap gets the same rule: the fringes outran the tracker,
+so the rate inside the gap exceeded what either edge shows and may have hidden
+whole fringes (``hop_range_fringes`` then bounds that excursion too). Any gap
+(whatever its reason) whose phase returns more than ``HOP_Z`` sigma from the
+rate prediction gets the same prior.
 
 With a wavelength log
 ---------------------
@@ -57,7 +60,7 @@ import math
 import numpy as np
 import pandas as pd
 
-from ._bridge._carry import (HOP_REASONS, HOP_Z, ONE_SIDED_DECIDED_SIGMA, P_DECIDED, SHORT_GAP_FRAMES,
+from ._bridge._carry import (FAST_REASONS, HOP_REASONS, HOP_Z, ONE_SIDED_DECIDED_SIGMA, P_DECIDED, SHORT_GAP_FRAMES,
                              edge_row, rate_row)
 from ._bridge._inputs import (BridgeInputError, WavelengthLogError, check_gaps, check_log, check_track,
                               frame_time_s, gap_frame_count, read_log_csv, stretches_from_track)
@@ -73,6 +76,7 @@ __all__ = [
     "P_DECIDED",
     "HOP_Z",
     "HOP_REASONS",
+    "FAST_REASONS",
     "SHORT_GAP_FRAMES",
     "ONE_SIDED_DECIDED_SIGMA",
     "RATE_WINDOW_FRAMES",

@@ -202,16 +202,17 @@ def wrap(x):
     return x - math.floor(x + 0.5)
 
 
+@pytest.mark.parametrize("reason", ["low_visibility", "too_fast"])
 @pytest.mark.parametrize("n_frames, expect_hop", [(1, False), (2, False), (3, True), (12, True)])
-def test_low_visibility_rule_without_log(n_frames, expect_hop):
-    # Documented rule (bridge module docstring): a low-visibility gap may hide a mode hop; only a 1-2 frame
-    # gap whose phase returns where a tight rate prediction puts it is treated as a blur.
+def test_low_visibility_rule_without_log(n_frames, expect_hop, reason):
+    # Documented rule (bridge module docstring): a low-visibility gap may hide a mode hop, a too-fast gap a rate
+    # excursion; only a 1-2 frame gap whose phase returns where a tight rate prediction puts it is trusted.
     rng = np.random.default_rng(11)
     t = np.arange(200) / FPS
     true = 2.0 * t
     untrusted = np.zeros(t.size, bool)
     untrusted[100:100 + n_frames] = True
-    track, gaps = tables_from_count(t, true, untrusted, fringes_sigma=0.01, rng=rng, reasons="low_visibility")
+    track, gaps = tables_from_count(t, true, untrusted, fringes_sigma=0.01, rng=rng, reasons=reason)
     row = bridge_gaps(track, gaps, hop_range_fringes=4.0).iloc[0]
     assert bool(row["hop_suspected"]) is expect_hop
     assert bool(row["ambiguous"]) is expect_hop
@@ -222,6 +223,27 @@ def test_low_visibility_rule_without_log(n_frames, expect_hop):
     # The same gap with reason "dark" is never a suspected hop (the phase is where the rate puts it).
     gaps_dark = gaps.assign(reason="dark")
     assert not bridge_gaps(track, gaps_dark).iloc[0]["hop_suspected"]
+
+
+def test_too_fast_gap_with_rate_spike_is_covered():
+    # A stage jerk: 0.25 fringe/frame on both sides, 0.8 fringe/frame for 5 frames inside the gap (aliased for
+    # the tracker, Itoh 1982: steps above half a fringe cannot be unwrapped). The edge rates agree, so the rate
+    # carry alone would be confidently wrong by ~3 fringes; the too_fast rule must flag it and cover the truth
+    # within 2 sigma (sigma ~ hop_range / sqrt(3) = 3.46 fringes).
+    rng = np.random.default_rng(21)
+    n = 200
+    step = np.full(n, 0.25)
+    step[100:105] = 0.8
+    true = np.r_[0.0, np.cumsum(step[:-1])]
+    t = np.arange(n) / FPS
+    untrusted = np.zeros(n, bool)
+    untrusted[99:106] = True
+    track, gaps = tables_from_count(t, true, untrusted, fringes_sigma=0.01, rng=rng, reasons="too_fast")
+    row = bridge_gaps(track, gaps).iloc[0]
+    truth = _true_across(true, row, n)
+    assert row["ambiguous"] and row["hop_suspected"]
+    assert abs(row["fringes_across"] - truth) > 2.0  # the rate carry alone misses the spike
+    assert abs(row["fringes_across"] - truth) <= 2 * row["fringes_across_sigma"]
 
 
 def test_hop_range_zero_removes_prior_width():

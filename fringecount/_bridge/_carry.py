@@ -8,7 +8,7 @@ from ._inputs import Stretch
 from ._integers import IntegerChoice, choose_integer, wrap_fraction
 from ._rate import RatePrediction, fit_side, predict_one_sided, predict_two_sided
 
-__all__ = ["P_DECIDED", "HOP_Z", "HOP_REASONS", "SHORT_GAP_FRAMES", "ONE_SIDED_DECIDED_SIGMA",
+__all__ = ["P_DECIDED", "HOP_Z", "HOP_REASONS", "FAST_REASONS", "SHORT_GAP_FRAMES", "ONE_SIDED_DECIDED_SIGMA",
            "empty_row", "edge_measurements", "rate_prediction", "integer_row", "apply_hop_prior", "rate_row",
            "edge_row"]
 
@@ -23,6 +23,9 @@ P_DECIDED = 0.99
 HOP_Z = 4.0
 #: Gap reasons that, without a wavelength log, may hide a mode hop (visibility collapsed).
 HOP_REASONS = frozenset({"low_visibility", "mode_hop"})
+#: Gap reasons where the count itself outran the tracker: a rate excursion inside the gap (a jerk of
+#: the stage) may hide whole fringes that no edge rate shows. Treated like HOP_REASONS.
+FAST_REASONS = frozenset({"too_fast"})
 #: A low-visibility gap of at most this many analysed frames with a tight, consistent rate
 #: prediction is treated as a blur, not a hop.
 SHORT_GAP_FRAMES = 2
@@ -110,10 +113,12 @@ def rate_row(before: Stretch | None, after: Stretch | None, *, reason: str, gap_
     notes = []
     if inconsistent:
         notes.append(f"phase returned {choice.z:+.1f} sigma from the rate prediction: possible mode hop")
-    hop_reason = any(r in reason for r in HOP_REASONS)  # also "low_visibility+saturated" etc.
-    if hop_reason and not (gap_frames <= SHORT_GAP_FRAMES and tight):
+    blur_ok = gap_frames <= SHORT_GAP_FRAMES and tight
+    if any(r in reason for r in HOP_REASONS) and not blur_ok:  # substring: also "low_visibility+saturated"
         notes.append("visibility collapsed: a mode hop by whole fringes cannot be excluded without a "
                      "wavelength log")
+    elif any(r in reason for r in FAST_REASONS) and not blur_ok:
+        notes.append("fringes outran the tracker: a rate excursion inside the gap may hide whole fringes")
     if notes:
         apply_hop_prior(row, hop_range_fringes)
         row["note"] = "; ".join(notes)
