@@ -178,18 +178,23 @@ def reason_styles(reasons: Iterable[str]) -> dict[str, tuple[str, str]]:
         Okabe–Ito colours in order of appearance. Six reasons get six colours;
         beyond that colours repeat with a different hatch.
     """
+    reasons = list(dict.fromkeys(reasons))
+    reserved = {_KNOWN_REASONS[r][0] for r in reasons if r in _KNOWN_REASONS}
+    reserved_hatches = {_KNOWN_REASONS[r][1] for r in reasons if r in _KNOWN_REASONS}
     styles: dict[str, tuple[str, str]] = {}
     used_colours: list[str] = []
     for reason in reasons:
-        if reason in styles:
-            continue
         colour_name, hatch = _KNOWN_REASONS.get(reason, (None, None))
         if colour_name is None or colour_name in used_colours:
-            free = [c for c in _REASON_COLOURS if c not in used_colours]
+            # colours no known reason here needs come first, then any unused one
+            free = ([c for c in _REASON_COLOURS if c not in used_colours and c not in reserved]
+                    + [c for c in _REASON_COLOURS if c not in used_colours and c in reserved])
             colour_name = free[0] if free else _REASON_COLOURS[len(styles) % len(_REASON_COLOURS)]
-        if hatch is None or hatch in (h for _, h in styles.values()):
-            hatch = next((h for h in _REASON_HATCHES if h not in (hh for _, hh in styles.values())),
-                         _REASON_HATCHES[len(styles) % len(_REASON_HATCHES)])
+        used_hatches = [h for _, h in styles.values()]
+        if hatch is None or hatch in used_hatches:
+            free_hatches = ([h for h in _REASON_HATCHES if h not in used_hatches and h not in reserved_hatches]
+                            + [h for h in _REASON_HATCHES if h not in used_hatches and h in reserved_hatches])
+            hatch = free_hatches[0] if free_hatches else _REASON_HATCHES[len(styles) % len(_REASON_HATCHES)]
         used_colours.append(colour_name)
         styles[reason] = (OKABE_ITO[colour_name], hatch)
     return styles
@@ -314,11 +319,12 @@ def _summary_lines(result, labels: Sequence[str]) -> tuple[list[str], list[str]]
         for reason in gaps["reason"].astype(str):
             counts[reason] = counts.get(reason, 0) + 1
         items = list(counts.items())
-        shown = items if len(items) <= 3 else items[:2]
+        items.sort(key=lambda item: -item[1])
+        shown = items if len(items) <= 2 else items[:1]
         for reason, n in shown:
             right.append(f"  {n} × {reason_label(reason)}")
         if len(items) > len(shown):
-            right.append(f"  {sum(n for _, n in items[2:])} × {len(items) - 2} other reasons")
+            right.append(f"  {sum(n for _, n in items[1:])} × {len(items) - 1} other reasons")
     if n_gaps and "method" in gaps.columns:
         methods: dict[str, int] = {}
         for method in gaps["method"].fillna("").astype(str):
@@ -326,14 +332,15 @@ def _summary_lines(result, labels: Sequence[str]) -> tuple[list[str], list[str]]
         right.append("Bridged by  " + ", ".join(f"{n} × {reason_label(m)}" for m, n in methods.items()))
     ambiguous = [lab for lab, a in zip(labels, gaps.get("ambiguous", [False] * n_gaps)) if _is_true(a)]
     if ambiguous:
-        listed = ", ".join(ambiguous[:4]) + (", ..." if len(ambiguous) > 4 else "")
-        right.append(f"Ambiguous   {len(ambiguous)} ({listed}): whole fringes uncertain")
+        listed = ", ".join(ambiguous[:3]) + (", ..." if len(ambiguous) > 3 else "")
+        right.append(f"Ambiguous   {len(ambiguous)} ({listed}): whole")
+        right.append("            fringes across not certain")
     else:
         right.append("Ambiguous   none")
     clip = summary.get("clip") or summary.get("clip_path") or ""
     if clip:
         right.append(f"Recording   {Path(str(clip)).name}")
-    right.append(f"Software    fringecount {summary.get('version', __version__)}")
+    left.append(f"Software      fringecount {summary.get('version', __version__)}")
     return left, right
 
 
@@ -364,9 +371,10 @@ def _cumulative_sigma(frames, gaps) -> np.ndarray:
     if len(gaps) and "frame" in frames.columns:
         numbers = np.asarray(frames["frame"], dtype=float)
         first = _column(gaps, "first_frame")
-        gap_sigma = np.nan_to_num(_column(gaps, "fringes_across_sigma", default=0.0), nan=0.0)
-        for a, s in zip(first, gap_sigma):
-            var = var + np.where(numbers >= a, s ** 2, 0.0)
+        gap_var = np.nan_to_num(_column(gaps, "fringes_across_sigma", default=0.0), nan=0.0) ** 2
+        order = np.argsort(first, kind="stable")
+        so_far = np.r_[0.0, np.cumsum(gap_var[order])]
+        var = var + so_far[np.searchsorted(first[order], numbers, side="right")]
     return np.sqrt(var)
 
 
@@ -533,7 +541,7 @@ def render_report(result, *, clip: str | os.PathLike | None = None) -> ReportFig
 
     fig = Figure(figsize=_PAGE_IN, dpi=_DPI, layout=None)
     FigureCanvasAgg(fig)
-    grid = fig.add_gridspec(6, 1, height_ratios=[1.1, 3.0, 1.1, 1.1, 1.1, 1.65],
+    grid = fig.add_gridspec(6, 1, height_ratios=[1.3, 3.0, 1.1, 1.1, 1.1, 1.6],
                             left=0.09, right=0.97, top=0.945, bottom=0.03, hspace=0.5)
     clip_name = summary.get("clip") or (str(clip) if clip else "")
     title = "fringecount report" + (f": {Path(str(clip_name)).name}" if clip_name else "")
@@ -547,9 +555,9 @@ def render_report(result, *, clip: str | os.PathLike | None = None) -> ReportFig
     ax_sum.set_title(PANEL_SUMMARY, loc="left", fontsize=10, fontweight="bold", pad=4)
     left, right = _summary_lines(result, labels)
     ax_sum.text(0.0, 1.0, "\n".join(left), va="top", ha="left", family="monospace", fontsize=8,
-                transform=ax_sum.transAxes, linespacing=1.5)
+                transform=ax_sum.transAxes, linespacing=1.4)
     ax_sum.text(0.56, 1.0, "\n".join(right), va="top", ha="left", family="monospace", fontsize=8,
-                transform=ax_sum.transAxes, linespacing=1.5)
+                transform=ax_sum.transAxes, linespacing=1.4)
     panels.append(PANEL_SUMMARY)
 
     # ---- cumulative count

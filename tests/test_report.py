@@ -286,3 +286,13 @@ def test_reason_styles_are_fixed_for_the_gap_reasons():
     # an unknown reason next to known ones takes a colour none of them uses
     mixed = report.reason_styles(["saturated", "cosmic ray"])
     assert mixed["cosmic ray"][0] not in {forward["saturated"][0]}
+
+
+def test_unknown_reasons_leave_the_known_styles_alone():
+    gaps = pytest.importorskip("fringecount.gaps")
+    fixed = report.reason_styles(gaps.REASONS)
+    mixed = report.reason_styles(["cosmic ray", *gaps.REASONS, "operator"])
+    for reason in gaps.REASONS:
+        assert mixed[reason] == fixed[reason]
+    assert mixed["cosmic ray"] != mixed["operator"]
+    assert mixed["cosmic ray"][0] not in {c for c, _ in fixed.values()}
