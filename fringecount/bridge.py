@@ -65,12 +65,14 @@ from ._bridge._carry import (FAST_REASONS, HOP_REASONS, HOP_Z, ONE_SIDED_DECIDED
 from ._bridge._inputs import (BridgeInputError, WavelengthLogError, check_gaps, check_log, check_track,
                               frame_time_s, gap_frame_count, read_log_csv, stretches_from_track)
 from ._bridge._rate import RATE_WINDOW_FRAMES
+from ._bridge._simulate import tables_from_count
 from ._bridge._wavelog import solve_log
 
 __all__ = [
     "bridge_gaps",
     "read_wavelength_log",
     "fit_group_opd",
+    "tables_from_count",
     "BridgeInputError",
     "WavelengthLogError",
     "P_DECIDED",
@@ -214,6 +216,25 @@ def bridge_gaps(track: pd.DataFrame, gaps: pd.DataFrame, *, wavelength_log: pd.D
        determinations metrologiques", J. Phys. Theor. Appl. 7, 57-68 (1898).
     .. [2] K. Itoh, "Analysis of the phase unwrapping algorithm", Appl. Opt.
        21(14), 2470 (1982).
+
+    Examples
+    --------
+    A mirror moving at 2 fringes/s, filmed at 30 frames/s, with the beam blocked
+    for 5 frames: the rate carry recovers the whole count across the block.
+
+    >>> import numpy as np
+    >>> from fringecount.bridge import bridge_gaps, tables_from_count
+    >>> t = np.arange(300) / 30.0
+    >>> true = 2.0 * t
+    >>> blocked = (t >= 4.0) & (t < 4.17)
+    >>> track, gaps = tables_from_count(t, true, blocked, fringes_sigma=0.01,
+    ...                                 rng=np.random.default_rng(0))
+    >>> row = bridge_gaps(track, gaps).iloc[0]
+    >>> row["method"], bool(row["ambiguous"])
+    ('rate', False)
+    >>> first, last = int(gaps.first_frame[0]), int(gaps.last_frame[0])
+    >>> bool(abs(row["fringes_across"] - (true[last + 1] - true[first - 1])) < 0.07)
+    True
     """
     rows, _opd = _bridge_all(track, gaps, wavelength_log, log_offset_s, air_wavelengths, hop_range_fringes, rng)
     added = pd.DataFrame(rows, columns=list(OUTPUT_COLUMNS)).astype({"ambiguous": bool, "hop_suspected": bool})

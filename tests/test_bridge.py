@@ -387,6 +387,15 @@ def test_bad_tables_raise_one_line_input_error(mutate, match):
     assert "\n" not in str(info.value)
 
 
+def test_docstring_examples_run():
+    import doctest
+
+    import fringecount.bridge
+
+    result = doctest.testmod(fringecount.bridge, optionflags=doctest.ELLIPSIS)
+    assert result.attempted > 0 and result.failed == 0
+
+
 def test_bad_hop_range_raises():
     track, gaps = _small_tables()
     with pytest.raises(InputError, match="hop_range"):
