@@ -757,10 +757,15 @@ class _Running:
         self.lifeline.close()
 
 
+#: Imported once by the server that forks the workers, so a fresh worker starts warm
+#: (scipy.signal is imported lazily by the phase stage; missing modules are skipped).
+_PRELOAD = ["fringecount.batch", "fringecount.pipeline", "fringecount.results", "scipy.signal"]
+
+
 def _worker_context():
     ctx = multiprocessing.get_context("forkserver")
     # A fresh worker forks from a server that already imported the analysis code.
-    ctx.set_forkserver_preload(["fringecount.batch", "fringecount.pipeline", "fringecount.results"])
+    ctx.set_forkserver_preload(_PRELOAD)
     return ctx
 
 

@@ -225,8 +225,8 @@ def test_any_center_and_radius_ends_cleanly(capsys, tmp_path, good_npy, x, y, ou
 
 # --------------------------------------------------------------------------- batch: kill -9 and resume
 
-def _batch_cmd(src: Path, out: Path) -> list[str]:
-    return [sys.executable, "-m", "fringecount", "batch", str(src), "--out", str(out), "--jobs", "1",
+def _batch_cmd(src: Path, out: Path, jobs: int) -> list[str]:
+    return [sys.executable, "-m", "fringecount", "batch", str(src), "--out", str(out), "--jobs", str(jobs),
             "--fps", "30", "--quiet"]
 
 
@@ -243,13 +243,14 @@ def _snapshot(out: Path) -> dict[str, dict[str, tuple[int, int]]]:
 def test_batch_killed_with_sigkill_resumes_without_losing_results(tmp_path):
     src = tmp_path / "archive"
     src.mkdir()
-    n_clips = 5
+    n_clips = 3
     for k in range(n_clips):
-        np.save(src / f"run_{k}.npy", _frames(n=40, seed=k))
+        np.save(src / f"run_{k}.npy", _frames(n=30, seed=k))
     (src / "broken.avi").write_bytes(b"RIFF\x00\x00\x00\x00AVI junk")
     out = tmp_path / "out"
     env = {**os.environ, "PYTHONWARNINGS": "ignore"}
-    proc = subprocess.Popen(_batch_cmd(src, out), env=env, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
+    # One clip at a time, so the kill lands after the first result and before the last.
+    proc = subprocess.Popen(_batch_cmd(src, out, 1), env=env, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
     try:
         deadline = time.monotonic() + 60
         while time.monotonic() < deadline and not (out.is_dir() and _snapshot(out)):
@@ -266,7 +267,7 @@ def test_batch_killed_with_sigkill_resumes_without_losing_results(tmp_path):
     before = _snapshot(out)
     assert 1 <= len(before) < n_clips  # killed part-way through
 
-    done = subprocess.run(_batch_cmd(src, out), env=env, capture_output=True, text=True, timeout=120)
+    done = subprocess.run(_batch_cmd(src, out, 2), env=env, capture_output=True, text=True, timeout=120)
     assert done.returncode == 1, done.stderr  # the broken clip failed; exit 1 says so
     after = _snapshot(out)
     assert len(after) == n_clips
