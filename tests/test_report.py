@@ -296,3 +296,25 @@ def test_unknown_reasons_leave_the_known_styles_alone():
         assert mixed[reason] == fixed[reason]
     assert mixed["cosmic ray"] != mixed["operator"]
     assert mixed["cosmic ray"][0] not in {c for c, _ in fixed.values()}
+
+
+def test_report_command_without_the_recording_warns_and_draws(clip, tmp_path, capsys):
+    results = pytest.importorskip("fringecount.results", reason="results (write/read) not landed yet")
+    pipeline = pytest.importorskip("fringecount.pipeline", reason="pipeline not landed yet")
+    from fringecount.cli import main
+    from fringecount.settings import CountSettings
+
+    path, _, _ = clip
+    moved = tmp_path / "gone.npy"
+    moved.write_bytes(path.read_bytes())
+    results.write_result(pipeline.count(moved, CountSettings(fps=FPS)), tmp_path / "run")
+    moved.unlink()
+    assert main(["report", str(tmp_path / "run")]) == 0
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and "not found" in err and "--clip" in err
+    assert (tmp_path / "run" / "report.png").exists()
+    # an explicit --clip that does not exist is an error, and nothing is drawn
+    (tmp_path / "run" / "report.png").unlink()
+    assert main(["report", str(tmp_path / "run"), "--clip", str(moved)]) == 2
+    assert "--no-thumbnails" in capsys.readouterr().err
+    assert not (tmp_path / "run" / "report.png").exists()
