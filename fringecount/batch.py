@@ -833,6 +833,13 @@ def _run_inline(items: list[BatchItem], out_dir: Path, *, options: dict,
 
 # --------------------------------------------------------------------------- Dask
 
+def _dask_failure(exc: BaseException) -> str:
+    if type(exc).__name__ == "KilledWorker":
+        return ("every Dask worker that ran this clip died (KilledWorker); the clip may crash its decoder "
+                "or exhaust memory: run fringecount count on it alone to see")
+    return _one_line(f"the Dask task for this clip failed ({type(exc).__name__}: {exc})")
+
+
 def _run_dask(items: list[BatchItem], out_dir: Path, *, address: Any, connect_timeout_s: float, options: dict,
               finish: Callable[[BatchItem, dict], None]) -> None:
     """Run each clip as one task on a Dask distributed cluster (scheduler at ``address``)."""
@@ -863,8 +870,7 @@ def _run_dask(items: list[BatchItem], out_dir: Path, *, address: Any, connect_ti
                     outcome = future.result()
                 except Exception as exc:  # noqa: BLE001 - KilledWorker, lost worker, cancelled...
                     outcome = {"status": "error", "elapsed_s": None, "reused": False,
-                               "error": _one_line(f"the Dask task for this clip failed ({type(exc).__name__}: "
-                                                  f"{exc}); a worker may have crashed on it")}
+                               "error": _dask_failure(exc)}
                 finish(item, outcome)
     finally:
         if futures:

@@ -18,11 +18,14 @@ pytestmark = needs_core
 
 @pytest.fixture(scope="module")
 def cluster():
-    # In-process workers keep the test light (no worker processes to start); the
-    # workers still run the tasks concurrently and write the result folders themselves.
-    with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=False,
-                                  dashboard_address=None, silence_logs="error") as c:
-        yield c
+    # Two worker processes (so that one can die in the crash test while the other goes
+    # on), one thread each; a task that kills its worker is not retried, to stay short.
+    import dask
+
+    with dask.config.set({"distributed.scheduler.allowed-failures": 0}):
+        with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True,
+                                      dashboard_address=":0", silence_logs=50) as c:
+            yield c
 
 
 def test_dask_batch_matches_the_local_batch(tmp_path, cluster):
@@ -69,3 +72,10 @@ def test_missing_dask_is_a_clear_input_error(tmp_path, monkeypatch):
     monkeypatch.setitem(sys.modules, "distributed", None)  # as if not installed
     with pytest.raises(InputError, match="pip install 'fringecount\\[cluster\\]'"):
         B.run_batch(src, tmp_path / "out", dask="tcp://127.0.0.1:9", analyse=scripted_analyse)
+
+
+def test_a_clip_that_kills_its_dask_worker_is_an_error_row(tmp_path, cluster):
+    src = _archive(tmp_path / "src", {"a.avi": "ok 1.0", "b.avi": "exit", "c.avi": "ok 2.0"})
+    t = B.run_batch(src, tmp_path / "out", dask=cluster.scheduler_address, analyse=scripted_analyse).table
+    assert list(t["status"]) == ["ok", "error", "ok"] and list(t["total_fringes"].fillna(-1)) == [1.0, -1, 2.0]
+    assert "KilledWorker" in t.loc[1, "error"]
