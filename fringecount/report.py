@@ -252,6 +252,8 @@ def _style_axes(ax, title: str) -> None:
     ax.set_title(title, loc="left", fontsize=10, fontweight="bold", pad=4)
     ax.grid(True, color="#d0d0d0", linewidth=0.5)
     ax.tick_params(labelsize=8)
+    ax.ticklabel_format(axis="y", style="sci", scilimits=(-3, 4), useMathText=True)
+    ax.yaxis.get_offset_text().set_fontsize(7)
     for side in ("top", "right"):
         ax.spines[side].set_visible(False)
 
@@ -480,6 +482,72 @@ def _read_thumbnails(clip, frame_numbers: Sequence[int], settings, fps) -> tuple
     return images, notes
 
 
+def _draw_thumbnails(fig, cell, result, gaps, labels, reasons, styles, clip) -> tuple[list[int], list[str]]:
+    """Fill the grid ``cell`` with frames from the gaps; return the frames shown and notes."""
+    from matplotlib import patheffects
+
+    frames = result.frames
+    summary = dict(getattr(result, "summary", {}) or {})
+    notes: list[str] = []
+    chosen = _thumbnail_choice(gaps, _MAX_THUMBNAILS)
+    shown: list[int] = []
+    head = fig.add_subplot(cell)
+    head.set_axis_off()
+    head.set_title(PANEL_THUMBNAILS, loc="left", fontsize=10, fontweight="bold", pad=4)
+    if not chosen:
+        head.text(0.5, 0.5, "no untrusted intervals", ha="center", va="center", fontsize=9,
+                  transform=head.transAxes)
+    elif clip is None or not Path(clip).exists():
+        why = "no recording given" if clip is None else f"recording {clip} not found"
+        head.text(0.5, 0.5, f"{why}: pass the clip to see frames from each gap",
+                  ha="center", va="center", fontsize=9, transform=head.transAxes)
+        notes.append(f"no thumbnails: {why}")
+    else:
+        slots = _thumbnail_slots(gaps, chosen, frames)
+        images, read_notes = _read_thumbnails(clip, [k for _, _, k in slots],
+                                              getattr(result, "settings", None), summary.get("fps"))
+        notes.extend(read_notes)
+        by_frame = frames.set_index("frame") if "frame" in frames.columns else None
+        strip = cell.subgridspec(2, len(slots), height_ratios=[0.4, 1.0], wspace=0.12, hspace=0.0)
+        outline = [patheffects.withStroke(linewidth=2.6, foreground="black")]
+        for slot, ((row, role, k), image) in enumerate(zip(slots, images)):
+            ax = fig.add_subplot(strip[1, slot])
+            ax.set_xticks([])
+            ax.set_yticks([])
+            colour, _ = styles[reasons[row]]
+            inside = role == "middle"
+            for spine in ax.spines.values():
+                spine.set_edgecolor(colour if inside else "#888888")
+                spine.set_linewidth(2.5 if inside else 0.8)
+            ax.set_title(f"{labels[row]} {role}\nframe {k}", fontsize=7, pad=2)
+            if image is None:
+                ax.text(0.5, 0.5, "unreadable", ha="center", va="center", fontsize=7,
+                        transform=ax.transAxes)
+                continue
+            grey = image if image.ndim == 2 else image.mean(axis=2)
+            lo, hi = _value_range(grey, image.dtype)
+            small, factor = _downsample(grey, _THUMB_PX)
+            ax.imshow(small, cmap="gray", vmin=lo, vmax=hi, interpolation="nearest")
+            if by_frame is not None and k in by_frame.index and summary.get("geometry") != "straight":
+                x0 = _first_float(by_frame, k, "center_x")
+                y0 = _first_float(by_frame, k, "center_y")
+                if math.isfinite(x0) and math.isfinite(y0):
+                    ax.plot([(x0 + 0.5) / factor - 0.5], [(y0 + 0.5) / factor - 0.5], marker="+",
+                            color=OKABE_ITO["yellow"], markersize=7, markeredgewidth=1.2,
+                            path_effects=outline)
+            shown.append(k)
+        if len(gaps) > len(chosen):
+            notes.append(f"thumbnails of the {len(chosen)} longest of {len(gaps)} gaps")
+            head.text(1.0, 1.02, f"the {len(chosen)} longest of {len(gaps)} gaps", ha="right",
+                      va="bottom", fontsize=7, transform=head.transAxes)
+        else:
+            hint = "coloured border: inside the gap" + (
+                "" if summary.get("geometry") == "straight" else "; + : centre found")
+            head.text(1.0, 1.02, hint, ha="right",
+                      va="bottom", fontsize=7, transform=head.transAxes)
+    return shown, notes
+
+
 # --------------------------------------------------------------------------- drawing
 
 
@@ -517,7 +585,6 @@ def render_report(result, *, clip: str | os.PathLike | None = None) -> ReportFig
     gap is still visible. Centre drift is plotted relative to the median centre
     of the trusted frames, in pixels (x = column, y = row).
     """
-    from matplotlib import patheffects
     from matplotlib.backends.backend_agg import FigureCanvasAgg
     from matplotlib.figure import Figure
     from matplotlib.lines import Line2D
@@ -667,63 +734,9 @@ def render_report(result, *, clip: str | os.PathLike | None = None) -> ReportFig
         ax_count.set_xlim(lo - pad, hi + pad if hi > lo else lo + 1.0)
 
     # ---- thumbnails
-    chosen = _thumbnail_choice(gaps, _MAX_THUMBNAILS)
-    shown: list[int] = []
-    head = fig.add_subplot(grid[5])
-    head.set_axis_off()
-    head.set_title(PANEL_THUMBNAILS, loc="left", fontsize=10, fontweight="bold", pad=4)
+    shown, strip_notes = _draw_thumbnails(fig, grid[5], result, gaps, labels, reasons, styles, clip)
     panels.append(PANEL_THUMBNAILS)
-    if not chosen:
-        head.text(0.5, 0.5, "no untrusted intervals", ha="center", va="center", fontsize=9,
-                  transform=head.transAxes)
-    elif clip is None or not Path(clip).exists():
-        why = "no recording given" if clip is None else f"recording {clip} not found"
-        head.text(0.5, 0.5, f"{why}: pass the clip to see frames from each gap",
-                  ha="center", va="center", fontsize=9, transform=head.transAxes)
-        notes.append(f"no thumbnails: {why}")
-    else:
-        slots = _thumbnail_slots(gaps, chosen, frames)
-        images, read_notes = _read_thumbnails(clip, [k for _, _, k in slots],
-                                              getattr(result, "settings", None), summary.get("fps"))
-        notes.extend(read_notes)
-        by_frame = frames.set_index("frame") if "frame" in frames.columns else None
-        strip = grid[5].subgridspec(2, len(slots), height_ratios=[0.4, 1.0], wspace=0.12, hspace=0.0)
-        outline = [patheffects.withStroke(linewidth=2.6, foreground="black")]
-        for slot, ((row, role, k), image) in enumerate(zip(slots, images)):
-            ax = fig.add_subplot(strip[1, slot])
-            ax.set_xticks([])
-            ax.set_yticks([])
-            colour, _ = styles[reasons[row]]
-            inside = role == "middle"
-            for spine in ax.spines.values():
-                spine.set_edgecolor(colour if inside else "#888888")
-                spine.set_linewidth(2.5 if inside else 0.8)
-            ax.set_title(f"{labels[row]} {role}\nframe {k}", fontsize=7, pad=2)
-            if image is None:
-                ax.text(0.5, 0.5, "unreadable", ha="center", va="center", fontsize=7,
-                        transform=ax.transAxes)
-                continue
-            grey = image if image.ndim == 2 else image.mean(axis=2)
-            lo, hi = _value_range(grey, image.dtype)
-            small, factor = _downsample(grey, _THUMB_PX)
-            ax.imshow(small, cmap="gray", vmin=lo, vmax=hi, interpolation="nearest")
-            if by_frame is not None and k in by_frame.index and summary.get("geometry") != "straight":
-                x0 = _first_float(by_frame, k, "center_x")
-                y0 = _first_float(by_frame, k, "center_y")
-                if math.isfinite(x0) and math.isfinite(y0):
-                    ax.plot([(x0 + 0.5) / factor - 0.5], [(y0 + 0.5) / factor - 0.5], marker="+",
-                            color=OKABE_ITO["yellow"], markersize=7, markeredgewidth=1.2,
-                            path_effects=outline)
-            shown.append(k)
-        if len(gaps) > len(chosen):
-            notes.append(f"thumbnails of the {len(chosen)} longest of {len(gaps)} gaps")
-            head.text(1.0, 1.02, f"the {len(chosen)} longest of {len(gaps)} gaps", ha="right",
-                      va="bottom", fontsize=7, transform=head.transAxes)
-        else:
-            hint = "coloured border: inside the gap" + (
-                "" if summary.get("geometry") == "straight" else "; + : centre found")
-            head.text(1.0, 1.02, hint, ha="right",
-                      va="bottom", fontsize=7, transform=head.transAxes)
+    notes.extend(strip_notes)
     for note in notes:
         logger.info("report: %s", note)
     return ReportFigure(figure=fig, panels=tuple(panels), thumbnail_frames=tuple(shown),
