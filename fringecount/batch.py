@@ -33,7 +33,6 @@ from __future__ import annotations
 
 import contextlib
 import csv
-import dataclasses
 import hashlib
 import io
 import json
@@ -45,9 +44,8 @@ import os
 import re
 import shutil
 import signal
-import sys
-import time
 import threading
+import time
 import tomllib
 import warnings
 from collections import deque
@@ -627,6 +625,9 @@ def _row(item: BatchItem, outcome: Mapping[str, Any]) -> dict[str, Any]:
                 row.update(_derive(item, summary))
             except FringecountError as exc:
                 row.update(status="error", error=_one_line(f"derive {item.model}: {exc}"))
+            except Exception as exc:  # noqa: BLE001 - one clip's model must not stop the batch
+                row.update(status="error", error=_one_line(
+                    f"derive {item.model}: internal error: {type(exc).__name__}: {exc} (report it)"))
     return row
 
 
