@@ -114,12 +114,13 @@ def _fit_chunk(P, valid, x, h, kappa, env, w, bg, *, newton: bool):
     sw = np.sqrt(ww)
     Xw = X * sw[..., None]
     Pw = np.where(valid, P, 0.0) * sw
-    G = np.einsum("mnp,mnq->mpq", Xw, Xw)
+    XwT = Xw.transpose(0, 2, 1)
+    G = XwT @ Xw
     p = G.shape[-1]
     G += np.eye(p)[None] * (1e-12 * np.trace(G, axis1=1, axis2=2)[:, None, None] + 1e-300)
-    rhs = np.einsum("mnp,mn->mp", Xw, Pw)
+    rhs = (XwT @ Pw[..., None])[..., 0]
     beta = np.linalg.solve(G, rhs[..., None])[..., 0]
-    res = Pw - np.einsum("mnp,mp->mn", Xw, beta)
+    res = Pw - (Xw @ beta[..., None])[..., 0]
     nvalid = valid.sum(axis=1)
     dof = np.maximum(nvalid - p, 1)
     s2 = (res ** 2).sum(axis=1) / dof
@@ -350,6 +351,20 @@ def _fill_bins(P):
     return np.where(np.isfinite(P), P, colmean[None, :])
 
 
+def _leading_components(D: np.ndarray, k: int = 2, iterations: int = 8):
+    """The ``k`` leading right singular vectors of ``D`` by subspace iteration (cheap for k << n_bins)."""
+    rng = np.random.default_rng(0)
+    Y = D.T @ (D @ rng.standard_normal((D.shape[1], k + 4)))
+    for _ in range(iterations):
+        Q, _ = np.linalg.qr(Y)
+        Y = D.T @ (D @ Q)
+    Q, _ = np.linalg.qr(Y)
+    small = Q.T @ (D.T @ (D @ Q))
+    w, V = np.linalg.eigh(small)
+    vecs = Q @ V[:, ::-1][:, :k]
+    return tuple(vecs.T)
+
+
 def _ellipse_to_circle(a: np.ndarray, b: np.ndarray):
     """Heydemann (1981) correction: conic fit of the Lissajous points, returns a map to the unit circle."""
     A = np.column_stack([a * a, a * b, b * b, a, b])
@@ -380,9 +395,7 @@ def temporal_model(P, x, counts, scale) -> "RadialModel":
     D = (Q - mean) * w
     if D.shape[0] < 4:
         raise ValueError("too few lit frames")
-    cov = D.T @ D
-    ev, evec = np.linalg.eigh(cov)
-    v1, v2 = evec[:, -1], evec[:, -2]
+    v1, v2 = _leading_components(D)
     a, b = D @ v1, D @ v2
     r = np.hypot(a - a.mean(), b - b.mean())
     sel = r > 0.3 * np.median(r)

@@ -271,8 +271,8 @@ def _stream(source: FrameSource, bins_for_frame: Callable[[int], list[ProfileBin
         times[k] = fr.time_s
         if block_samples is not None:
             pos = k % block_len
-            if pos % max(1, block_len // 6) == 0 and len(block_samples[blk]) < 6:
-                block_samples[blk].append(_as_float(img))
+            if pos % max(1, block_len // 3) == 0 and len(block_samples[blk]) < 3:
+                block_samples[blk].append((k, _as_float(img)))
         got += 1
         if progress is not None:
             progress(k + 1, n)
@@ -287,34 +287,66 @@ def _stream(source: FrameSource, bins_for_frame: Callable[[int], list[ProfileBin
     return stream, frames[keep], times[keep], got
 
 
-def _drift_track(block_samples, geom: Geometry, settings: CountSettings, shape) -> tuple[np.ndarray, dict]:
-    """Per-block centre estimates and the decision whether the centre drifted."""
-    est = []
+def _drift_track(block_samples, geom: Geometry, settings: CountSettings, shape, n: int
+                 ) -> tuple[np.ndarray | None, dict]:
+    """Centre of single sampled frames, and a smooth drift track if it stands clear of their scatter.
+
+    Each sampled frame gets its own centre (spatially high-passed, so no mixing of
+    frames taken at different centres). Frames whose fringe contrast is weak (dark,
+    washed out) are left out. A polynomial in frame number (degree 0, 1 or 2,
+    chosen by the Bayesian information criterion) is fitted to each coordinate;
+    the drift is accepted only when the trend departs from a constant by more than
+    three standard errors and 0.1 px. Returns the per-frame centres (n, 2) or None.
+    """
     mask = _crop_mask(shape, settings.crop)
+    ks, xs, ys, cs = [], [], [], []
     for samples in block_samples:
-        if len(samples) < 3:
-            est.append((np.nan, np.nan, np.nan, np.nan))
-            continue
-        f = fringe_images(np.stack(samples))
-        r = refine_center(f, geom.center.xy, mask=mask, step_px=0.5, inner_px=settings.inner_radius_px,
-                          outer_px=settings.outer_radius_px, max_error_frames=0)
-        est.append((r.x, r.y, r.x_err, r.y_err) if r else (np.nan, np.nan, np.nan, np.nan))
-    est = np.asarray(est, float)
-    ok = np.isfinite(est).all(axis=1)
-    info = {"blocks": int(len(est)), "drift_accepted": False, "max_drift_px": 0.0, "chi2_per_dof": float("nan")}
-    if ok.sum() < 3:
-        return est, info
-    e = est[ok]
-    # scatter of block estimates about their mean, against the estimate's own scatter
-    # (successive differences measure the noise even when there is a trend)
-    noise = np.sqrt(0.5 * np.mean(np.diff(e[:, :2], axis=0) ** 2, axis=0)) + 1e-3
-    noise = np.maximum(noise, np.median(e[:, 2:], axis=0))
-    dev = e[:, :2] - np.median(e[:, :2], axis=0)
-    chi2 = float(((dev / noise) ** 2).sum() / max(2 * len(e) - 2, 1))
-    max_drift = float(np.abs(dev).max())
-    info.update(chi2_per_dof=chi2, max_drift_px=max_drift, block_noise_px=[float(v) for v in noise])
-    info["drift_accepted"] = bool(chi2 > 4.0 and max_drift > 0.3)
-    return est, info
+        for k, img in samples:
+            r = refine_center(fringe_images(img), geom.center.xy, mask=mask, step_px=0.5,
+                              inner_px=settings.inner_radius_px, outer_px=settings.outer_radius_px,
+                              max_error_frames=0)
+            if r:
+                ks.append(k)
+                xs.append(r.x)
+                ys.append(r.y)
+                cs.append(r.contrast)
+    info = {"samples": len(ks), "drift_accepted": False, "max_drift_px": 0.0}
+    if len(ks) < 6:
+        return None, info
+    ks, xs, ys, cs = map(np.asarray, (ks, xs, ys, cs))
+    good = cs >= 0.5 * np.median(cs)
+    med = np.array([np.median(xs[good]), np.median(ys[good])])
+    dev = np.hypot(xs - med[0], ys - med[1])
+    mad = 1.4826 * np.median(dev[good]) + 0.02
+    good &= dev < max(5 * mad, 1.0) + np.ptp(ks) * 0  # drop wild single-frame fits
+    if good.sum() < 6:
+        return None, info
+    t = (ks[good] - n / 2.0) / max(n, 1)
+    tracks, ses, scat = [], [], []
+    for v in (xs[good], ys[good]):
+        best = None
+        for deg in (0, 1, 2):
+            if good.sum() <= deg + 3:
+                break
+            coef, res, *_ = np.polyfit(t, v, deg, full=True)
+            rss = float(res[0]) if len(res) else float(((np.polyval(coef, t) - v) ** 2).sum())
+            m = good.sum()
+            bic = m * math.log(max(rss / m, 1e-12)) + (deg + 1) * math.log(m)
+            if best is None or bic < best[0] - 2.0:
+                best = (bic, deg, coef, math.sqrt(max(rss / max(m - deg - 1, 1), 1e-8)))
+        _, deg, coef, s = best
+        tt = (np.arange(n) - n / 2.0) / max(n, 1)
+        track = np.polyval(coef, tt)
+        tracks.append(track)
+        scat.append(s)
+        ses.append(s / math.sqrt(good.sum()))
+    track = np.column_stack(tracks)
+    departure = np.abs(track - track.mean(axis=0)).max(axis=0)
+    accepted = bool(np.any((departure > 3 * np.asarray(ses)) & (departure > 0.1)))
+    info.update(drift_accepted=accepted, max_drift_px=float(departure.max()),
+                frame_scatter_px=[float(v) for v in scat], trend_sigma_px=[float(v) for v in ses],
+                used_samples=int(good.sum()))
+    return (track if accepted else None), info
 
 
 # ----------------------------------------------------------------------------- main entry
@@ -389,17 +421,11 @@ def _count_open(source: FrameSource, settings: CountSettings, progress, t_start)
     drift_info: dict = {"drift_accepted": False}
     centers = np.tile(np.asarray(base, float), (got, 1))
     if track_drift:
-        est, drift_info = _drift_track(block_samples, geom, settings, shape)
-        if drift_info["drift_accepted"]:
+        track, drift_info = _drift_track(block_samples, geom, settings, shape, n)
+        if track is not None:
             logger.info("ring centre drifts by up to %.2f px: second pass with a moving centre",
                         drift_info["max_drift_px"])
-            ok = np.isfinite(est[:, 0])
-            # block estimates sit at the middle of their sampled frames; interpolate per frame
-            bc = np.asarray([np.mean([j for j in range(b * block_len, min(n, (b + 1) * block_len))
-                                      if (j % block_len) % max(1, block_len // 6) == 0][:6]) for b in range(n_blocks)])[ok]
-            frame_pos = np.arange(n)
-            cx = np.interp(frame_pos, bc, est[ok, 0])
-            cy = np.interp(frame_pos, bc, est[ok, 1])
+            cx, cy = track[:, 0], track[:, 1]
             cache: dict = {}
 
             def per_frame(k):
@@ -452,7 +478,12 @@ def _count_open(source: FrameSource, settings: CountSettings, progress, t_start)
     # systematic terms: centre sensitivity and radial-model order
     sys_center = 0.0
     if geom.kind == "rings" and geom.center is not None and len(stream.prof) == 3:
-        for j, err in ((1, geom.center.x_err), (2, geom.center.y_err)):
+        errs = (geom.center.x_err, geom.center.y_err)
+        if drift_info.get("drift_accepted"):
+            # the end frames sit off the smooth track by the single-frame scatter (shake)
+            errs = tuple(math.hypot(a, b) for a, b in zip(drift_info["trend_sigma_px"],
+                                                           drift_info["frame_scatter_px"]))
+        for j, err in ((1, errs[0]), (2, errs[1])):
             alt = fit_phases(stream.prof[j][:got].astype(float), stream.bins[j].coord, stream.bins[j].counts, model)
             d = _endpoint_change(alt.phase, fits.phase, segment)
             sys_center += (d * (err / delta)) ** 2
@@ -478,7 +509,11 @@ def _count_open(source: FrameSource, settings: CountSettings, progress, t_start)
     sigma = math.sqrt(sum(v ** 2 for v in budget.values()))
 
     frames_out = table.assign(fringes=cumulative)
-    frames_out["fringes_sigma"] = np.sqrt(sig_fr ** 2 + sig_fr[0] ** 2)
+    # 1-sigma of the cumulative count at each frame: end-phase noise plus the gaps bridged so far
+    passed = np.zeros(len(frames_out))
+    for g in bridged.to_dict("records"):
+        passed[frames > int(g["last_frame"])] += float(g["fringes_across_sigma"]) ** 2
+    frames_out["fringes_sigma"] = np.sqrt(sig_fr ** 2 + sig_fr[0] ** 2 + passed)
     frames_out = frames_out[FRAME_COLUMNS + [c for c in frames_out.columns if c.startswith("flag_")]
                             + ["step_fringes", "kappa"]]
     gap_cols = ["first_frame", "last_frame", "start_s", "stop_s", "reason", "fringes_across",
@@ -641,13 +676,17 @@ def inspect_roi(clip, settings: CountSettings | None = None, *, frame: int | Non
     source, owned = _open(clip, settings)
     try:
         n = len(source)
-        k = n // 2 if frame is None else int(frame)
-        if not 0 <= k < n:
-            raise SettingsError(f"--frame {k} is outside the clip (0..{n - 1})")
+        if frame is not None and not 0 <= int(frame) < n:
+            raise SettingsError(f"--frame {frame} is outside the clip (0..{n - 1})")
         shape = tuple(source.frame_shape)
         _check_roi(shape, settings)
-        _, samples = _sample_frames(source)
+        used, samples = _sample_frames(source)
         geom = _find_geometry(samples, settings)
+        if frame is None:  # show a frame with fringes (not a dark or washed-out one)
+            energy = fringe_images(samples).var(axis=(1, 2)) * (samples.mean(axis=(1, 2)) > 0)
+            k = int(used[int(np.argmax(energy))])
+        else:
+            k = int(frame)
         img = source.get_frame(k)
         level = _saturation_level(source, settings)
         bins = _bins_for(geom, shape, settings)
