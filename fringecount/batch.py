@@ -434,14 +434,16 @@ def _read_csv(path: Path, base: CountSettings) -> list[BatchItem]:
         text = path.read_text(encoding="utf-8-sig")
     except UnicodeDecodeError:
         raise SettingsError(f"manifest {path} is not UTF-8 text; save it as UTF-8 CSV") from None
-    lines = [ln for ln in text.splitlines() if ln.strip() and not ln.lstrip().startswith("#")]
-    if not lines:
-        raise SettingsError(f"manifest {path} is empty; give a header line with a 'path' column")
     try:
-        rows = list(csv.reader(lines))
+        reader = csv.reader(io.StringIO(text, newline=""))
+        rows = [(reader.line_num, row) for row in reader]
     except csv.Error as exc:
         raise SettingsError(f"manifest {path} is not valid CSV ({_one_line(exc)}); fix the file") from None
-    header = [h.strip() for h in rows[0]]
+    # Blank lines and comment lines (first cell starting with '#') are skipped.
+    rows = [(n, row) for n, row in rows if any(c.strip() for c in row) and not row[0].lstrip().startswith("#")]
+    if not rows:
+        raise SettingsError(f"manifest {path} is empty; give a header line with a 'path' column")
+    header = [h.strip() for h in rows[0][1]]
     dupes = sorted({h for h in header if header.count(h) > 1})
     if dupes:
         raise SettingsError(f"manifest {path}: column {dupes[0]!r} appears twice; keep one")
@@ -449,7 +451,7 @@ def _read_csv(path: Path, base: CountSettings) -> list[BatchItem]:
         raise SettingsError(f"manifest {path}: no 'path' column; the header must name the clip column 'path'")
     _check_keys({k: None for k in header if k}, f"manifest {path} header")
     items = []
-    for number, row in enumerate(rows[1:], start=2):
+    for number, row in rows[1:]:
         where = f"manifest {path} line {number}"
         if len(row) > len(header):
             raise SettingsError(f"{where}: {len(row)} cells but {len(header)} columns; quote cells with commas")

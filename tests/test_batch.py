@@ -18,6 +18,7 @@ import numpy as np
 import pandas as pd
 import pytest
 import tifffile
+from hypothesis import HealthCheck, given, settings, strategies as st
 
 from fringecount import batch as B
 from fringecount.errors import ClipError, InputError, SettingsError
@@ -195,6 +196,61 @@ def test_manifest_values_are_data_not_code(tmp_path):
     with pytest.raises(SettingsError, match="fps must be a number"):
         B.read_manifest(manifest)
     assert not marker.exists()
+
+
+_CELL_KEYS = ("fps", "channel", "frames", "center", "inner", "outer", "crop", "saturation", "geometry",
+              "fixed_center", "min_visibility", "max_step", "hop_range", "log_offset", "air_wavelengths")
+
+
+@settings(max_examples=200, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(key=st.sampled_from(_CELL_KEYS), cell=st.text(max_size=30))
+def test_any_csv_cell_is_a_setting_or_a_one_line_settings_error(tmp_path, key, cell):
+    # Whatever a lab types into a cell, reading the manifest ends in settings or in a
+    # SettingsError naming the line, never in another exception.
+    import csv as _csv
+    import io as _io
+
+    buffer = _io.StringIO()
+    _csv.writer(buffer).writerows([["path", key], ["a.avi", cell]])
+    manifest = _write(tmp_path / "m.csv", buffer.getvalue())
+    try:
+        (item,) = B.read_manifest(manifest)
+    except SettingsError as exc:
+        assert "\n" not in str(exc) and "m.csv" in str(exc)
+    else:
+        assert isinstance(item.settings, CountSettings)
+
+
+@settings(max_examples=100, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(value=st.recursive(st.none() | st.booleans() | st.integers() | st.floats() | st.text(max_size=10),
+                          lambda inner: st.lists(inner, max_size=4), max_leaves=6),
+       key=st.sampled_from(_CELL_KEYS + ("path", "model")))
+def test_any_toml_value_is_a_setting_or_a_one_line_settings_error(tmp_path, key, value):
+    import json as _json
+
+    if value is None:
+        return  # TOML has no null
+    entry = {"path": "a.avi", key: value}
+    lines = ["[[clip]]"] + [f"{k} = {_toml(v)}" for k, v in entry.items()]
+    manifest = _write(tmp_path / "m.toml", "\n".join(lines) + "\n")
+    try:
+        B.read_manifest(manifest)
+    except InputError as exc:  # SettingsError, or a bad-TOML error for values TOML cannot hold
+        assert "\n" not in str(exc), _json.dumps(str(exc))
+
+
+def _toml(value) -> str:
+    """A Python value as a TOML value (None inside lists becomes an empty string)."""
+    import json as _json
+    import math as _math
+
+    if isinstance(value, bool):
+        return "true" if value else "false"
+    if isinstance(value, float) and not _math.isfinite(value):
+        return "nan" if _math.isnan(value) else ("inf" if value > 0 else "-inf")
+    if isinstance(value, list):
+        return "[" + ", ".join(_toml("" if v is None else v) for v in value) + "]"
+    return _json.dumps(value)
 
 
 def test_plan_batch_dispatches_and_reports_missing_source(tmp_path):
