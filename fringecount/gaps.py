@@ -16,9 +16,10 @@ import pandas as pd
 __all__ = ["REASONS", "flag_frames", "find_gaps", "unwrap_segments"]
 
 #: Gap reasons, most severe first (a mixed gap takes the first that applies).
-REASONS = ("dark", "low_visibility", "saturated", "center_lost", "too_fast")
+REASONS = ("unreadable", "dark", "low_visibility", "saturated", "center_lost", "too_fast")
 
 _DESCRIPTIONS = {
+    "unreadable": "frame could not be decoded (damaged file or image)",
     "dark": "too little light (beam blocked or laser off)",
     "low_visibility": "fringes washed out (laser mode hop / multimode, or blur)",
     "saturated": "too many saturated pixels in the region of interest",
@@ -71,7 +72,11 @@ def flag_frames(table: pd.DataFrame, *, min_visibility: float | None = None,
     sat = (~dark) & ((t["saturated_fraction"].to_numpy(float) > 0.25)
                      | (t["valid_fraction"].to_numpy(float) < 0.6)) & ~low
     lost = ~t["center_ok"].to_numpy(bool) if "center_ok" in t else np.zeros(n, bool)
-    bad = dark | low | sat | lost
+    unreadable = t["unreadable"].to_numpy(bool) if "unreadable" in t else np.zeros(n, bool)
+    dark &= ~unreadable
+    low &= ~unreadable
+    sat &= ~unreadable
+    bad = dark | low | sat | lost | unreadable
     # grow washed-out intervals into their partly blurred edges (phase biased there)
     soft = v < 0.7 * vis_ref
     grow = low.copy()
@@ -80,8 +85,8 @@ def flag_frames(table: pd.DataFrame, *, min_visibility: float | None = None,
         if (nxt == grow).all():
             break
         grow = nxt
-    low = grow & ~dark
-    bad = dark | low | sat | lost
+    low = grow & ~dark & ~unreadable
+    bad = dark | low | sat | lost | unreadable
     # too fast: step since the previous frame, when both are otherwise good
     phase = t["phase"].to_numpy(float)
     fast = np.zeros(n, bool)
@@ -105,13 +110,14 @@ def flag_frames(table: pd.DataFrame, *, min_visibility: float | None = None,
             k = j
         else:
             k += 1
+    t["flag_unreadable"] = unreadable
     t["flag_dark"] = dark
     t["flag_low_visibility"] = low
     t["flag_saturated"] = sat
     t["flag_center_lost"] = lost
     t["flag_too_fast"] = fast
     t["step_fringes"] = step
-    trusted = ~(dark | low | sat | lost | fast | short)
+    trusted = ~(dark | low | sat | lost | fast | short | unreadable)
     reason = np.full(n, "", dtype=object)
     for r in reversed(REASONS):
         reason[t[f"flag_{r}"].to_numpy(bool)] = r

@@ -171,7 +171,8 @@ def _find_geometry(samples: np.ndarray, settings: CountSettings) -> Geometry:
                            outer_px=settings.outer_radius_px, crop=settings.crop)
             ring_contrast = _explained(fimgs, rb)
         except SettingsError:
-            if want == "rings" or settings.center is not None:
+            user_radii = settings.inner_radius_px > 0 or settings.outer_radius_px is not None
+            if want == "rings" or settings.center is not None or user_radii:
                 raise
             ring = None
     if want == "rings" and ring:
@@ -278,13 +279,19 @@ def _stream(source: FrameSource, bins_for_frame: Callable[[int], list[ProfileBin
             progress(k + 1, n)
     if got == 0:
         raise InputError(f"no frame of {source.path} could be decoded; check the file (it may be corrupt)")
-    keep = stream.ok.copy()
-    if got < n:
-        logger.warning("only %d of %d frames could be decoded; the rest are left out", got, n)
-        stream.prof = [p[keep] for p in stream.prof]
-        stream.sat = stream.sat[keep]
-        stream.ok = stream.ok[keep]
-    return stream, frames[keep], times[keep], got
+    last = int(np.flatnonzero(stream.ok)[-1]) + 1
+    if last < n:
+        logger.warning("only the first %d of %d frames could be decoded; the clip looks truncated", last, n)
+    missing = np.flatnonzero(~stream.ok[:last])
+    if missing.size:
+        logger.warning("%d frame(s) could not be decoded and are marked unreadable: %s", missing.size,
+                       ", ".join(str(int(positions[i])) for i in missing[:10]))
+        frames[missing] = positions[missing]
+        times[missing] = np.asarray(source.times_s)[missing]
+    stream.prof = [p[:last] for p in stream.prof]
+    stream.sat = stream.sat[:last]
+    stream.ok = stream.ok[:last]
+    return stream, frames[:last], times[:last], last
 
 
 def _drift_track(block_samples, geom: Geometry, settings: CountSettings, shape, n: int
@@ -458,7 +465,7 @@ def _count_open(source: FrameSource, settings: CountSettings, progress, t_start)
         "phase_sigma": fits.phase_sigma, "visibility": fits.visibility, "brightness": fits.brightness,
         "saturated_fraction": stream.sat[:got], "valid_fraction": fits.valid_fraction,
         "residual": fits.residual, "kappa": fits.kappa,
-        "center_x": centers[:, 0], "center_y": centers[:, 1],
+        "center_x": centers[:, 0], "center_y": centers[:, 1], "unreadable": ~stream.ok[:got],
     })
     table = flag_frames(table, min_visibility=settings.min_visibility,
                         max_step_fringes=settings.max_step_fringes)

@@ -139,8 +139,6 @@ def test_missing_file_and_empty_folder(capsys, tmp_path):
     assert_clean_failure(*run_cli(capsys, ["count", str(tmp_path / "empty"), "--fps", "30", "--quiet"])[::2])
 
 
-@pytest.mark.xfail(strict=True, reason="count skips an undecodable image without a gap or a note in the "
-                                        "result (reported to the pipeline owner)")
 def test_folder_with_one_bad_image(capsys, tmp_path):
     import cv2
 
@@ -184,18 +182,12 @@ def test_npy_with_pickled_objects_is_not_loaded(capsys, tmp_path):
 
 # --------------------------------------------------------------------------- absurd settings
 
-# Seen on the 96 x 96 clip: the pipeline ignores --inner when it finds the centre itself
-# (summary roi.inner_px is 0) and counts an annulus that lies wholly outside the frame.
-_ANNULUS_OFF_FRAME = pytest.mark.xfail(
-    strict=True, reason="count accepts an annulus wholly outside the frame (reported to the pipeline owner)")
-
-
 @pytest.mark.parametrize("options", [
     ["--fps", "0"], ["--fps", "-30"], ["--fps", "nan"], ["--fps", "inf"], ["--fps", "1e12"],
     # A centre a little off the frame is legitimate (arcs of rings); these are far off it.
     ["--center", "5000,5000"], ["--center=-3000,20"], ["--center", "nan,3"], ["--center", "1,2,3"],
     ["--outer", "0"], ["--inner", "-3"],
-    pytest.param(["--inner", "500", "--outer", "600"], marks=_ANNULUS_OFF_FRAME),
+    ["--inner", "500", "--outer", "600"],  # an annulus wholly outside the frame
     # A crop larger than the frame is clipped to it (lenient by design); these miss it.
     ["--crop", "200,200,300,300"], ["--crop", "90,90,95,95"], ["--crop", "10,10,5,5"],
     ["--frames", "500:900"], ["--frames", "9:3"], ["--frames", "0:10:0"], ["--frames", "a:b"],
