@@ -67,8 +67,9 @@ OKABE_ITO: dict[str, str] = {
     "reddish purple": "#CC79A7",
 }
 
-#: Colours for gap reasons, in the order reasons are met (blue and black draw the data).
-_REASON_COLOURS = ("orange", "vermillion", "reddish purple", "sky blue", "bluish green", "yellow")
+#: Colours for gap reasons, in the order reasons are met (black draws the data; blue, which draws the
+#: count, is left for a seventh, unknown reason).
+_REASON_COLOURS = ("orange", "vermillion", "reddish purple", "sky blue", "bluish green", "yellow", "blue")
 #: Hatches for gap reasons, so that the shading survives greyscale print.
 _REASON_HATCHES = ("///", "\\\\\\", "xxx", "...", "+++", "ooo", "---", "|||")
 #: Fixed styles for the reasons fringecount.gaps gives (colour name, hatch).
@@ -78,6 +79,7 @@ _KNOWN_REASONS = {
     "saturated": ("vermillion", "xxx"),
     "center_lost": ("bluish green", "..."),
     "too_fast": ("sky blue", "+++"),
+    "unreadable": ("yellow", "ooo"),
 }
 
 #: Opacity of the gap tint on the count panel (the other panels use two thirds of it).
