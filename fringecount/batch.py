@@ -74,6 +74,7 @@ __all__ = [
     "clean_stale_staging",
     "analyse_item",
     "run_batch",
+    "available_cores",
 ]
 
 logger = logging.getLogger(__name__)
@@ -884,6 +885,14 @@ def _run_dask(items: list[BatchItem], out_dir: Path, *, address: Any, connect_ti
 
 # --------------------------------------------------------------------------- the batch
 
+def available_cores() -> int:
+    """CPU cores this process may run on (the default number of local jobs)."""
+    try:
+        return len(os.sched_getaffinity(0)) or 1
+    except AttributeError:  # pragma: no cover - not Linux
+        return os.cpu_count() or 1
+
+
 @dataclass(frozen=True)
 class BatchReport:
     """What :func:`run_batch` did.
@@ -933,7 +942,7 @@ def run_batch(source: str | os.PathLike | list[BatchItem], out_dir: str | os.Pat
     settings : CountSettings, optional
         Settings every clip starts from (a manifest overrides them per clip).
     jobs : int, optional
-        Local worker processes at once (default: the number of CPU cores). Each
+        Local worker processes at once (default: :func:`available_cores`). Each
         clip runs in a fresh process, so a crash loses only that clip. ``0`` runs
         the clips one by one in this process, without that isolation (debugging).
     force : bool
@@ -978,7 +987,7 @@ def run_batch(source: str | os.PathLike | list[BatchItem], out_dir: str | os.Pat
     """
     out_dir = Path(out_dir)
     if jobs is None:
-        jobs = os.cpu_count() or 1
+        jobs = available_cores()
     if not isinstance(jobs, int) or jobs < 0:
         raise InputError(f"jobs must be a whole number >= 1 (or 0 for in-process), got {jobs!r}")
     if timeout_s is not None and not (math.isfinite(timeout_s) and timeout_s > 0):
@@ -1048,6 +1057,7 @@ def run_batch(source: str | os.PathLike | list[BatchItem], out_dir: str | os.Pat
             elif todo:
                 _run_local(todo, out_dir, jobs=min(jobs, len(todo)), options=options, timeout_s=timeout_s,
                            finish=finish)
+                clean_stale_staging(out_dir)  # a worker stopped mid-write leaves its staging folder
         finally:
             if rows:
                 written = _write_table(current_table(), out_dir)

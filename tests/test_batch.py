@@ -293,6 +293,12 @@ def scripted_analyse(clip, settings):
         os.kill(os.getpid(), signal.SIGSEGV)  # a crashing decoder
     if kind == "hang":
         time.sleep(60)
+    if kind == "halfway":  # stopped while its result folder is being staged
+        from fringecount._atomic import staged_directory
+
+        with staged_directory(Path(clip).parent.parent / "out" / B.result_folder_name(Path(clip).name)) as stage:
+            (stage / "frames.csv").write_text("frame\n0\n")
+            time.sleep(60)
     raise AssertionError(kind)
 
 
@@ -558,3 +564,12 @@ def test_derive_failure_keeps_the_count_and_marks_the_row(tmp_path):
     assert t.loc[0, "status"] == "error" and t.loc[0, "total_fringes"] == 3.0
     assert t.loc[0, "error"].startswith("derive plate-rotation: params.wavelength is required")
     assert (tmp_path / "out" / t.loc[0, "result_dir"] / "summary.json").exists()
+
+
+@needs_core
+def test_a_worker_stopped_mid_write_leaves_no_staging_folder(tmp_path):
+    src = _archive(tmp_path / "src", {"a.avi": "ok 1.0", "b.avi": "halfway"})
+    out = tmp_path / "out"
+    t = B.run_batch(src, out, jobs=2, timeout_s=2.0, analyse=scripted_analyse).table
+    assert list(t["status"]) == ["ok", "error"] and "timeout" in t.loc[1, "error"]
+    assert sorted(p.name for p in out.iterdir() if p.name.startswith(".")) == [".batch.lock"]

@@ -16,7 +16,6 @@ from __future__ import annotations
 
 import argparse
 import json
-import os
 import sys
 
 import pandas as pd
@@ -94,7 +93,7 @@ def run(args: argparse.Namespace) -> int:
         bar.update(1)
 
     try:
-        report = run_batch(items, args.out, jobs=args.jobs or os.cpu_count() or 1, force=args.force,
+        report = run_batch(items, args.out, jobs=args.jobs, force=args.force,
                            report=args.report, dask=args.dask, timeout_s=args.timeout, progress=progress)
     finally:
         bar.close()
