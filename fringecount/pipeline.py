@@ -75,7 +75,35 @@ class Geometry:
     contrast: float
 
 
+#: Rings closer than this (px) are not resolved by the pixels; they are left out of the fit.
+#: Sampling theory needs more than 2 px per period; 3 px leaves room for pixel averaging.
+MIN_RING_PERIOD_PX = 3.0
+
+
 # ----------------------------------------------------------------------------- helpers
+def _resolved_bins(model: RadialModel, bins: ProfileBins) -> np.ndarray:
+    """Bins whose local ring period in pixels is at least :data:`MIN_RING_PERIOD_PX`."""
+    x = bins.coord / model.coord_scale
+    c2, c3 = model.shape
+    dpsi_ds = abs(model.kappa) * (1 + 2 * c2 * x + 3 * c3 * x * x) / model.coord_scale
+    r = np.sqrt(np.maximum(bins.coord, 0))
+    with np.errstate(divide="ignore"):
+        period = 2 * np.pi / np.maximum(dpsi_ds * 2 * r, 1e-300)
+    ok = period >= MIN_RING_PERIOD_PX
+    # keep the inner run of resolved bins (the period shrinks outward)
+    bad = np.flatnonzero(~ok)
+    if bad.size and bad[0] > 0:
+        ok[bad[0]:] = False
+    return ok
+
+
+def _subset_bins(bins: ProfileBins, keep: np.ndarray) -> ProfileBins:
+    """The same bins without those not in ``keep`` (their pixels leave the ROI)."""
+    new = np.full(bins.n_bins + 1, int(keep.sum()), np.intp)
+    new[np.flatnonzero(keep)] = np.arange(int(keep.sum()))
+    return ProfileBins(bins.kind, bins.box, new[bins.labels], bins.coord[keep], bins.counts[keep], bins.center,
+                       bins.direction, bins.inner_px, float(math.sqrt(bins.coord[keep].max())))
+
 def _as_float(img: np.ndarray) -> np.ndarray:
     return np.asarray(img, dtype=np.float32)
 
@@ -458,6 +486,16 @@ def _count_open(source: FrameSource, settings: CountSettings, progress, t_start)
     except ValueError:
         raise NoFringesError("no fringe frequency found in the region of interest; "
                              "check the clip or tune the ROI with 'fringecount roi'") from None
+    if geom.kind == "rings" and model.mode == "radial":
+        keep = _resolved_bins(model, nb0)
+        if keep.sum() < keep.size and keep.sum() >= 16:
+            logger.info("rings finer than %.1f px beyond r = %.0f px are left out", MIN_RING_PERIOD_PX,
+                        math.sqrt(nb0.coord[keep].max()))
+            stream.prof = [p[:, keep] for p in stream.prof]
+            stream.bins = [_subset_bins(b, keep) for b in stream.bins]
+            nb0 = stream.bins[0]
+            profiles = profiles[:, keep]
+            model = estimate_model(profiles, nb0.coord, nb0.counts)
     fits = fit_phases(profiles, nb0.coord, nb0.counts, model)
 
     table = pd.DataFrame({
@@ -470,8 +508,8 @@ def _count_open(source: FrameSource, settings: CountSettings, progress, t_start)
     table = flag_frames(table, min_visibility=settings.min_visibility,
                         max_step_fringes=settings.max_step_fringes)
     if not table["trusted"].any():
-        raise NoFringesError("no frame has fringes that can be followed (all dark, washed out or saturated); "
-                             "check the recording and the ROI")
+        raise NoFringesError("no frame has fringes that can be followed (all dark, washed out, saturated or "
+                             "finer than the pixels); check the recording and the ROI")
     segment, gaps = find_gaps(table)
     fr_seg = unwrap_segments(fits.phase, segment)
     sig_fr = fits.phase_sigma / (2 * np.pi)
