@@ -337,6 +337,10 @@ def _smooth_track(values, sigmas, good, window):
         b = (s0 * t1 - s1 * t0) / det
         out[ok] = (a + b * t)[ok]
         sig[ok] = np.sqrt(np.maximum((s2 - 2 * t * s1 + t * t * s0) / det, 0))[ok]
+        flat = ~ok & (s0 > 0)  # too few frames for a line: a weighted mean
+        out[flat] = (t0 / s0)[flat]
+        sig[flat] = (1.0 / np.sqrt(s0))[flat]
+        ok |= flat
     if ok.any() and not ok.all():
         idx = np.arange(n)
         out = np.interp(idx, idx[ok], out[ok])

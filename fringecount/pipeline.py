@@ -734,6 +734,12 @@ def inspect_roi(clip, settings: CountSettings | None = None, *, frame: int | Non
             k = int(frame)
         img = source.get_frame(k)
         level = _saturation_level(source, settings)
+        if geom.kind == "rings" and settings.center is None:
+            # the centre of this very frame (the clip's centre may drift)
+            own = refine_center(fringe_images(_as_float(img)), geom.center.xy, mask=_crop_mask(shape, settings.crop),
+                                step_px=0.5, max_error_frames=0)
+            if own and math.hypot(own.x - geom.center.x, own.y - geom.center.y) < 20:
+                geom = Geometry("rings", own, geom.direction, own.xy, geom.contrast)
         bins = _bins_for(geom, shape, settings)
         prof, sat_frac = frame_profile(img, bins, level)
         many = np.stack([frame_profile(s, bins, level)[0] for s in samples])
@@ -754,8 +760,10 @@ def inspect_roi(clip, settings: CountSettings | None = None, *, frame: int | Non
             cen = geom.reference
             csig = (float("nan"), float("nan"))
         # usable radius range: bins whose fringe amplitude stays above a third of the typical
-        env = model.envelope
+        env = model.envelope_at(bins.coord / model.coord_scale)
         usable = env > 0.25 * float(np.median(env))
+        if geom.kind == "rings" and model.mode == "radial":
+            usable &= _resolved_bins(model, bins)
         rr = (float(r[usable].min()), float(r[usable].max())) if usable.any() else (float(r.min()), float(r.max()))
         suggested = {"center": [round(cen[0], 2), round(cen[1], 2)], "inner": round(max(rr[0], 0.0), 1),
                      "outer": round(rr[1], 1), "crop": list(settings.crop) if settings.crop else None}
