@@ -191,3 +191,27 @@ def test_rings_finer_than_the_pixels_are_left_out(tmp_path):
     r = count(tmp_path / "f.npy", CountSettings(fps=25.0))
     assert r.summary["roi"]["outer_px"] < 100
     assert abs(r.total_fringes - truth["fringes"].iloc[-1]) < max(4 * r.total_fringes_sigma, 2e-3)
+
+
+def test_motion_too_fast_to_follow_is_a_gap_that_admits_whole_fringes(tmp_path):
+    # A burst at 0.45 fringe/frame: near the 0.5 fringe/frame aliasing limit of temporal
+    # unwrapping (Itoh 1982), so the steps cannot be followed; the gap must be flagged and its
+    # sigma must cover the fringes that passed unseen.
+    lam = 632.9908e-9
+
+    def displacement(t):
+        v1, v2 = 0.1 * 25 * lam / 2, 0.45 * 25 * lam / 2
+        t = np.asarray(t, float)
+        return np.where(t < 1.0, v1 * t, np.where(t < 1.4, v1 + v2 * (t - 1.0), v1 + 0.4 * v2 + v1 * (t - 1.4)))
+
+    cam = S.Camera(width=160, height=120, focal_px=500.0, exposure_fraction=0.1)
+    frames, truth = S.render_clip(S.Scene(center_xy=(80.0, 60.0)), cam,
+                                  S.MirrorSweep(d0_m=0.2e-3, displacement_m=displacement), 75, 25.0,
+                                  rng=np.random.default_rng(1))
+    np.save(tmp_path / "fast.npy", frames)
+    r = count(tmp_path / "fast.npy", CountSettings(fps=25.0))
+    assert list(r.gaps["reason"]) == ["too_fast"]
+    g = r.gaps.iloc[0]
+    assert 24 <= g["first_frame"] <= 27 and 33 <= g["last_frame"] <= 37
+    assert r.summary["ambiguous"]
+    assert abs(r.total_fringes - truth["fringes"].iloc[-1]) < 3 * r.total_fringes_sigma
