@@ -252,7 +252,8 @@ def measure_child(kind: str, path: Path, use_tracemalloc: bool) -> dict:
         wall = time.perf_counter() - t0
     out = {"kind": kind, "wall_s": wall, "rss_base_mib": base, "rss_peak_mib": _maxrss_mib(),
            "anon_base_mib": anon_base, "anon_peak_mib": sampler.anon_kib / 1024.0,
-           "file_peak_mib": sampler.file_kib / 1024.0, **facts}
+           "file_peak_mib": sampler.file_kib / 1024.0,
+           "package_dir": str(Path(fringecount.pipeline.__file__).parent), **facts}
     if use_tracemalloc:
         out["py_peak_mib"] = tracemalloc.get_traced_memory()[1] / 2 ** 20
         tracemalloc.stop()
@@ -260,11 +261,37 @@ def measure_child(kind: str, path: Path, use_tracemalloc: bool) -> dict:
 
 
 # ----------------------------------------------------------------------------- parent side
+#: Extra environment of the measuring children (PYTHONPATH of the code snapshot).
+CHILD_ENV: dict[str, str] = {}
+
+
+def snapshot_package(out_dir: Path, log) -> tuple[str, Path] | None:
+    """Export ``fringecount/`` at git HEAD into ``out_dir/snapshot-REV`` and return (rev, folder).
+
+    Other developers change the working tree while a long run goes on; measuring a
+    fixed commit keeps all rows comparable and names exactly what was measured.
+    """
+    try:
+        rev = subprocess.run(["git", "-C", str(HERE.parent), "rev-parse", "--short", "HEAD"],
+                             capture_output=True, text=True, check=True).stdout.strip()
+    except (OSError, subprocess.CalledProcessError):
+        return None
+    dest = out_dir / f"snapshot-{rev}"
+    if not (dest / "fringecount" / "__init__.py").exists():
+        dest.mkdir(parents=True, exist_ok=True)
+        archive = subprocess.run(["git", "-C", str(HERE.parent), "archive", "HEAD", "fringecount"],
+                                 capture_output=True, check=True).stdout
+        subprocess.run(["tar", "-x", "-C", str(dest)], input=archive, check=True)
+    log(f"measuring fringecount at commit {rev} (snapshot in {dest.relative_to(HERE.parent)})")
+    return rev, dest
+
+
 def run_child(kind: str, path: Path, use_tracemalloc: bool = False) -> dict:
     cmd = [sys.executable, str(Path(__file__).resolve()), "--measure", kind, str(path)]
     if use_tracemalloc:
         cmd.append("--tracemalloc")
-    proc = subprocess.run(cmd, capture_output=True, text=True, env={**os.environ, "PYTHONHASHSEED": "0"})
+    proc = subprocess.run(cmd, capture_output=True, text=True,
+                          env={**os.environ, "PYTHONHASHSEED": "0", **CHILD_ENV})
     if proc.returncode != 0:
         raise RuntimeError(f"{kind} on {path.name} failed:\n{proc.stderr[-3000:]}")
     return json.loads(proc.stdout.strip().splitlines()[-1])
@@ -300,11 +327,17 @@ def measure_clip(spec: ClipSpec, path: Path, repeat: int, use_tracemalloc: bool,
 def profile_count(path: Path, out_txt: Path, log) -> None:
     """cProfile of count() on ``path`` (in a subprocess), sorted by cumulative time."""
     prof = OUT_DIR / (path.stem + ".prof")
-    code = ("import cProfile, logging; logging.disable(logging.WARNING);"
-            "from fringecount.pipeline import count; from fringecount.settings import CountSettings;"
-            f"cProfile.run('count({str(path)!r}, CountSettings(fps={FPS}))', {str(prof)!r})")
+    code = ("import cProfile, logging, sys\n"
+            "logging.disable(logging.WARNING)\n"
+            "from fringecount.pipeline import count\n"
+            "from fringecount.settings import CountSettings\n"
+            "prof = cProfile.Profile()\n"
+            "prof.enable()\n"
+            f"count(sys.argv[1], CountSettings(fps={FPS!r}))\n"
+            "prof.disable()\n"
+            "prof.dump_stats(sys.argv[2])\n")
     log(f"profiling count() on {path.name}")
-    subprocess.run([sys.executable, "-c", code], check=True)
+    subprocess.run([sys.executable, "-c", code, str(path), str(prof)], check=True, env={**os.environ, **CHILD_ENV})
     import io
     import pstats
 
@@ -404,7 +437,7 @@ def write_markdown(rows: list[dict], env: dict, out_md: Path, quick: bool, elaps
              "## Machine", "",
              f"- CPU: {env['cpu']}, {env['cores']} cores (CPU only)",
              f"- Python {env['python']} on {env['platform']}",
-             f"- fringecount {env['fringecount']} (git {env['git']}); numpy {env['numpy']}, scipy {env['scipy']}, "
+             f"- fringecount {env['fringecount']}, measured code: {env.get('measured_code', 'git ' + env['git'])}; numpy {env['numpy']}, scipy {env['scipy']}, "
              f"pandas {env['pandas']}, opencv {env['opencv']}, tifffile {env['tifffile']}",
              f"- load average before the run: {env['load_before']} (a shared machine: other jobs ran "
              "alongside, so wall times carry tens of per cent of noise; ratios measured back to back are steadier)",
@@ -472,6 +505,8 @@ def main(argv=None) -> int:
     parser.add_argument("--profile", action="store_true",
                         help="also cProfile count() on the 640x480x1000 clip")
     parser.add_argument("--profile-only", action="store_true", help="only the profile")
+    parser.add_argument("--working-tree", action="store_true",
+                        help="measure the live working tree instead of a snapshot of fringecount/ at git HEAD")
     parser.add_argument("--out", type=Path, default=None, help="results markdown (default results/latest.md)")
     parser.add_argument("--from-json", type=Path, default=None,
                         help="only rewrite the markdown from a saved results JSON")
@@ -494,12 +529,18 @@ def main(argv=None) -> int:
     t_start = time.perf_counter()
     OUT_DIR.mkdir(parents=True, exist_ok=True)
     RESULTS_DIR.mkdir(parents=True, exist_ok=True)
-    if args.profile or args.profile_only:
+    measured = "working tree"
+    if not args.working_tree:
+        snap = snapshot_package(OUT_DIR, log)
+        if snap is not None:
+            CHILD_ENV["PYTHONPATH"] = os.pathsep.join([str(snap[1])] + [p for p in [os.environ.get("PYTHONPATH")] if p])
+            measured = f"commit {snap[0]} (snapshot of fringecount/)"
+    if args.profile_only:
         path = ensure_clip(ClipSpec(640, 480, 1000, "avi"), OUT_DIR, log)
         profile_count(path, RESULTS_DIR / "profile_count_640x480x1000.txt", log)
-        if args.profile_only:
-            return 0
+        return 0
     env = environment()
+    env["measured_code"] = measured
     repeat = args.repeat or 1
     rows = []
     for spec in clip_specs(args.quick):
@@ -512,6 +553,9 @@ def main(argv=None) -> int:
     out_md.with_suffix(".json").write_text(json.dumps({"environment": env, "rows": rows, "quick": args.quick,
                                                           "elapsed_s": elapsed}, indent=1))
     log(f"written {out_md}")
+    if args.profile:
+        path = ensure_clip(ClipSpec(640, 480, 1000, "avi"), OUT_DIR, log)
+        profile_count(path, RESULTS_DIR / "profile_count_640x480x1000.txt", log)
     return 0
 
 
