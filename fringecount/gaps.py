@@ -72,9 +72,15 @@ def flag_frames(table: pd.DataFrame, *, min_visibility: float | None = None,
     sat = (~dark) & ((t["saturated_fraction"].to_numpy(float) > 0.25)
                      | (t["valid_fraction"].to_numpy(float) < 0.6)) & ~low
     lost = ~t["center_ok"].to_numpy(bool) if "center_ok" in t else np.zeros(n, bool)
+    if "nonradial_fraction" in t:
+        # fringes still there but no longer symmetric about the centre: the centre was lost
+        # (a bumped mirror, a jump of the camera); a washed-out pattern leaves only noise instead
+        nr = t["nonradial_fraction"].to_numpy(float)
+        typical_nr = np.nanmedian(nr[~dark]) if (~dark).any() else np.nan
+        lost |= (~dark) & (v < 0.7 * vis_ref) & (nr > max(typical_nr + 0.35, 2.5 * typical_nr))
     unreadable = t["unreadable"].to_numpy(bool) if "unreadable" in t else np.zeros(n, bool)
     dark &= ~unreadable
-    low &= ~unreadable
+    low &= ~unreadable & ~lost
     sat &= ~unreadable
     bad = dark | low | sat | lost | unreadable
     # grow washed-out intervals into their partly blurred edges (phase biased there)
@@ -85,7 +91,7 @@ def flag_frames(table: pd.DataFrame, *, min_visibility: float | None = None,
         if (nxt == grow).all():
             break
         grow = nxt
-    low = grow & ~dark & ~unreadable
+    low = grow & ~dark & ~unreadable & ~lost
     bad = dark | low | sat | lost | unreadable
     # too fast: step since the previous frame, when both are otherwise good
     phase = t["phase"].to_numpy(float)

@@ -32,7 +32,7 @@ from .errors import ClipError, InputError, NoFringesError, SettingsError
 from .frames import FrameSource, open_frames
 from .gaps import describe, find_gaps, flag_frames, unwrap_segments
 from .phase import RadialModel, estimate_model, fit_phases, temporal_model
-from .profile import ProfileBins, frame_profile, line_bins, ring_bins
+from .profile import ProfileBins, frame_profile, line_bins, nonradial_fraction, ring_bins
 from .settings import CountSettings
 
 __all__ = ["count", "CountResult", "inspect_roi", "RoiInspection", "SIGN_CONVENTION"]
@@ -43,7 +43,7 @@ SIGN_CONVENTION = ("positive when the on-axis order increases (rings born at the
                    "straight fringes: positive when fringes move along the carrier direction "
                    "(pointing right, or down for horizontal fringes) - no absolute sign without a reference")
 
-FRAME_COLUMNS = ["frame", "time_s", "fringes", "fringes_sigma", "visibility", "trusted", "reason",
+FRAME_COLUMNS = ["frame", "time_s", "fringes", "fringes_sigma", "visibility", "trusted", "reason", "nonradial_fraction",
                  "phase_wrapped", "brightness", "saturated_fraction", "residual", "center_x", "center_y"]
 
 
@@ -264,6 +264,7 @@ class _ProfileStream:
         self.bins = bins
         self.prof = [np.full((n, b.n_bins), np.nan, np.float32) for b in bins]
         self.sat = np.zeros(n)
+        self.nonradial = np.full(n, np.nan)
         self.ok = np.zeros(n, bool)
 
     def add(self, k: int, img: np.ndarray, level: float | None) -> None:
@@ -272,6 +273,7 @@ class _ProfileStream:
             self.prof[j][k] = p
             if j == 0:
                 self.sat[k] = s
+                self.nonradial[k] = nonradial_fraction(img, b, p)
         self.ok[k] = True
 
 
@@ -318,6 +320,7 @@ def _stream(source: FrameSource, bins_for_frame: Callable[[int], list[ProfileBin
         times[missing] = np.asarray(source.times_s)[missing]
     stream.prof = [p[:last] for p in stream.prof]
     stream.sat = stream.sat[:last]
+    stream.nonradial = stream.nonradial[:last]
     stream.ok = stream.ok[:last]
     return stream, frames[:last], times[:last], last
 
@@ -504,6 +507,7 @@ def _count_open(source: FrameSource, settings: CountSettings, progress, t_start)
         "saturated_fraction": stream.sat[:got], "valid_fraction": fits.valid_fraction,
         "residual": fits.residual, "kappa": fits.kappa,
         "center_x": centers[:, 0], "center_y": centers[:, 1], "unreadable": ~stream.ok[:got],
+        "nonradial_fraction": stream.nonradial[:got],
     })
     table = flag_frames(table, min_visibility=settings.min_visibility,
                         max_step_fringes=settings.max_step_fringes)

@@ -17,7 +17,7 @@ import numpy as np
 
 from .errors import SettingsError
 
-__all__ = ["ProfileBins", "ring_bins", "line_bins", "frame_profile"]
+__all__ = ["ProfileBins", "ring_bins", "line_bins", "frame_profile", "nonradial_fraction"]
 
 
 @dataclass(frozen=True, eq=False)
@@ -180,3 +180,24 @@ def frame_profile(image: np.ndarray, bins: ProfileBins, saturation_level: float 
     sums = np.bincount(bins.labels, weights=flat, minlength=n + 1)[:n]
     with np.errstate(invalid="ignore", divide="ignore"):
         return sums / bins.counts, 0.0
+
+
+def nonradial_fraction(image: np.ndarray, bins: ProfileBins, profile: np.ndarray) -> float:
+    """Fraction (0..1) of the ROI's intensity variance that the 1-D profile does not explain.
+
+    Small for a pattern centred on the bins (only noise is left within each bin);
+    large when fringes are present but not symmetric about the centre (centre lost,
+    pattern distorted).
+    """
+    r0, r1, c0, c1 = bins.box
+    flat = image[r0:r1, c0:c1].ravel().astype(np.float64)
+    n = bins.n_bins
+    ss = np.bincount(bins.labels, weights=flat * flat, minlength=n + 1)[:n]
+    ok = np.isfinite(profile) & (bins.counts > 0)
+    if ok.sum() < 2:
+        return float("nan")
+    cnt = bins.counts[ok]
+    mean_all = float((profile[ok] * cnt).sum() / cnt.sum())
+    total = float(ss[ok].sum()) - cnt.sum() * mean_all ** 2
+    within = float((ss[ok] - cnt * profile[ok] ** 2).sum())
+    return within / total if total > 0 else float("nan")

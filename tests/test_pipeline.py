@@ -215,3 +215,20 @@ def test_motion_too_fast_to_follow_is_a_gap_that_admits_whole_fringes(tmp_path):
     assert 24 <= g["first_frame"] <= 27 and 33 <= g["last_frame"] <= 37
     assert r.summary["ambiguous"]
     assert abs(r.total_fringes - truth["fringes"].iloc[-1]) < 3 * r.total_fringes_sigma
+
+
+def test_a_bumped_centre_is_flagged_center_lost_and_bridged(tmp_path):
+    # The ring centre jumps by ~7 px for 0.4 s (a bumped mirror) and returns: the fringes are
+    # still there but no longer symmetric about the centre, so those frames are 'center_lost'
+    # (not a mode hop), and the steady motion is carried across them.
+    def path(t):
+        bump = np.where((np.asarray(t) > 1.2) & (np.asarray(t) < 1.6), 6.0, 0.0)
+        return (80.0 + bump, 60.0 + 0.5 * bump)
+
+    cam = S.Camera(width=160, height=120, focal_px=500.0)
+    frames, truth = S.render_clip(S.Scene(center_path=path), cam, S.MirrorSweep(d0_m=0.2e-3, velocity_m_s=0.4e-6),
+                                  75, 25.0, rng=np.random.default_rng(2))
+    np.save(tmp_path / "bump.npy", frames)
+    r = count(tmp_path / "bump.npy", CountSettings(fps=25.0))
+    assert list(r.gaps["reason"]) == ["center_lost"]
+    assert abs(r.total_fringes - truth["fringes"].iloc[-1]) < 3 * r.total_fringes_sigma
