@@ -33,6 +33,7 @@ from __future__ import annotations
 
 import contextlib
 import csv
+import dataclasses
 import hashlib
 import io
 import json
@@ -47,6 +48,7 @@ import signal
 import threading
 import time
 import tomllib
+import uuid
 import warnings
 from collections import deque
 from dataclasses import dataclass, field
@@ -837,6 +839,13 @@ def _run_inline(items: list[BatchItem], out_dir: Path, *, options: dict,
 
 # --------------------------------------------------------------------------- Dask
 
+def _absolute(item: BatchItem) -> BatchItem:
+    """``item`` with absolute paths (clip, wavelength log), for workers in other folders."""
+    log = item.settings.wavelength_log
+    settings = item.settings.replace(wavelength_log=str(Path(log).absolute())) if log else item.settings
+    return dataclasses.replace(item, clip=item.clip.absolute(), settings=settings)
+
+
 def _dask_failure(exc: BaseException) -> str:
     if type(exc).__name__ == "KilledWorker":
         return ("every Dask worker that ran this clip died (KilledWorker); the clip may crash its decoder "
@@ -862,20 +871,39 @@ def _run_dask(items: list[BatchItem], out_dir: Path, *, address: Any, connect_ti
     else:
         client = address
     futures: dict[Any, BatchItem] = {}
+    out_dir = out_dir.absolute()  # workers do not share this process's working folder
+
+    def submit(item: BatchItem):
+        future = client.submit(analyse_item, _absolute(item), out_dir, **options, pure=False,
+                               key=f"fringecount-batch-{item.result_name}-{uuid.uuid4().hex}")
+        futures[future] = item
+        return future
+
+    def outcome_of(future) -> dict:
+        try:
+            return future.result()
+        except Exception as exc:  # noqa: BLE001 - KilledWorker, lost worker, cancelled...
+            return {"status": "error", "elapsed_s": None, "reused": False, "error": _dask_failure(exc),
+                    "killed_worker": type(exc).__name__ == "KilledWorker"}
+
     try:
-        for item in items:
-            future = client.submit(analyse_item, item, out_dir, **options, pure=False, key=f"fringecount-batch-{item.result_name}-{os.getpid()}-"
-                                                   f"{time.time_ns()}")
-            futures[future] = item
+        suspects: list[BatchItem] = []
         with client.as_current():
-            for future in as_completed(list(futures)):
+            for future in as_completed([submit(item) for item in items]):
                 item = futures.pop(future)
-                try:
-                    outcome = future.result()
-                except Exception as exc:  # noqa: BLE001 - KilledWorker, lost worker, cancelled...
-                    outcome = {"status": "error", "elapsed_s": None, "reused": False,
-                               "error": _dask_failure(exc)}
-                finish(item, outcome)
+                outcome = outcome_of(future)
+                if outcome.pop("killed_worker", False):
+                    suspects.append(item)  # maybe it only shared the worker with a crashing clip
+                else:
+                    finish(item, outcome)
+        # Dask counts every task on a worker that died as suspect; run those again one at
+        # a time, so that a clip that only shared a worker with a crashing one completes.
+        for item in suspects:
+            future = submit(item)
+            outcome = outcome_of(future)
+            futures.pop(future)
+            outcome.pop("killed_worker", None)
+            finish(item, outcome)
     finally:
         if futures:
             client.cancel(list(futures))

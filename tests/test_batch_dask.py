@@ -19,7 +19,9 @@ pytestmark = needs_core
 @pytest.fixture(scope="module")
 def cluster():
     # Two worker processes (so that one can die in the crash test while the other goes
-    # on), one thread each; a task that kills its worker is not retried, to stay short.
+    # on), one thread each. Dask does not retry a task whose worker died, to stay short;
+    # the batch itself runs such clips once more, one at a time (a clip that was only
+    # queued on the dying worker must still complete).
     import dask
 
     with dask.config.set({"distributed.scheduler.allowed-failures": 0}):
@@ -54,6 +56,20 @@ def test_dask_batch_resumes_and_accepts_a_client(tmp_path, cluster):
     assert list(second["reused"]) == [True, True] and list(second["total_fringes"]) == [1.0, 2.0]
 
 
+def test_relative_paths_reach_workers_started_elsewhere(tmp_path, cluster, monkeypatch):
+    # The workers were started in another folder: relative clip, log and output paths
+    # must reach them as absolute paths.
+    _archive(tmp_path / "src", {"a.avi": "ok 5.0"})
+    (tmp_path / "src" / "a_log.csv").write_text("time_s,wavelength_nm\n0,632.99\n")
+    (tmp_path / "m.csv").write_text("path,wavelengths\nsrc/a.avi,src/a_log.csv\n")
+    monkeypatch.chdir(tmp_path)
+    t = B.run_batch("m.csv", "out", dask=cluster.scheduler_address, analyse=scripted_analyse).table
+    assert t.loc[0, "status"] == "ok", t.loc[0, "error"]
+    summary = json.loads((tmp_path / "out" / t.loc[0, "result_dir"] / "summary.json").read_text())
+    assert summary["clip"] == str(tmp_path / "src" / "a.avi")
+    assert summary["settings"]["wavelength_log"] == str(tmp_path / "src" / "a_log.csv")
+
+
 def test_unreachable_scheduler_is_an_input_error(tmp_path, monkeypatch):
     src = _archive(tmp_path / "src", {"a.avi": "ok 1.0"})
     # Nothing listens on this loopback address; keep the connect timeout short.
@@ -77,5 +93,6 @@ def test_missing_dask_is_a_clear_input_error(tmp_path, monkeypatch):
 def test_a_clip_that_kills_its_dask_worker_is_an_error_row(tmp_path, cluster):
     src = _archive(tmp_path / "src", {"a.avi": "ok 1.0", "b.avi": "exit", "c.avi": "ok 2.0"})
     t = B.run_batch(src, tmp_path / "out", dask=cluster.scheduler_address, analyse=scripted_analyse).table
-    assert list(t["status"]) == ["ok", "error", "ok"] and list(t["total_fringes"].fillna(-1)) == [1.0, -1, 2.0]
+    assert list(t["status"]) == ["ok", "error", "ok"], list(t["error"])
+    assert list(t["total_fringes"].fillna(-1)) == [1.0, -1, 2.0]
     assert "KilledWorker" in t.loc[1, "error"]
