@@ -382,7 +382,7 @@ def _ellipse_to_circle(a: np.ndarray, b: np.ndarray):
     return c, L
 
 
-def temporal_model(P, x, counts, scale) -> "RadialModel":
+def temporal_model(P, x, counts, scale, refine: int = 3) -> "RadialModel":
     """Few fringes across the ROI: fringe patterns from the clip itself (rank-2 decomposition).
 
     Each bin's brightness-normalised signal is V cos(phi_t - psi(x)); the two
@@ -422,7 +422,35 @@ def temporal_model(P, x, counts, scale) -> "RadialModel":
         beta = -beta
     basis = np.vstack([mean, alpha, beta])
     env = np.maximum(mean / max(float(mean.mean()), 1e-12), 1e-3)
-    return RadialModel(scale, (0.0, 0.0), float(abs(slope)), env, 0, x, basis)
+    model = RadialModel(scale, (0.0, 0.0), float(abs(slope)), env, 0, x, basis)
+    return _refine_temporal(model, P, counts, iterations=refine)
+
+
+def _refine_temporal(model, P, counts, iterations=3):
+    """Alternating least squares: frame phases from the patterns, then patterns from the phases.
+
+    The first patterns come from brightness-normalised profiles, which a few wide
+    fringes distort (the frame mean itself oscillates with the phase); refitting
+    the raw profiles as ``b_t (m + cos(phi_t) alpha + sin(phi_t) beta)`` removes
+    that distortion and with it most of the once-per-fringe (cyclic) error.
+    """
+    valid = np.isfinite(P)
+    for _ in range(iterations):
+        fits = _fit_temporal(P, model, counts)
+        b = fits.brightness / max(float((model.basis[0] * counts).sum() / counts.sum()), 1e-300)
+        rel = fits.visibility
+        good = np.isfinite(fits.phase) & (b > 0) & (rel > 0.6 * np.nanmedian(rel))
+        cols = valid[good].all(axis=0) & (counts > 0)
+        if good.sum() < 8 or cols.sum() < 8:
+            break
+        A = np.column_stack([b[good], b[good] * np.cos(fits.phase[good]), b[good] * np.sin(fits.phase[good])])
+        coef = model.basis.copy()
+        coef[:, cols] = np.linalg.lstsq(A, P[np.ix_(good, cols)], rcond=None)[0]   # (3, n_bins)
+        if not np.all(np.isfinite(coef[:, cols])):
+            break
+        model = RadialModel(model.coord_scale, model.shape, model.kappa, model.envelope, 0,
+                            model.envelope_x, coef)
+    return model
 
 
 def _fit_temporal(P, model, counts) -> "PhaseFits":

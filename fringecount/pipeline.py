@@ -555,6 +555,7 @@ def _count_open(source: FrameSource, settings: CountSettings, progress, t_start)
         sys_model = abs(_endpoint_change(alt.phase, fits.phase, segment))
     budget["center"] = sys_center
     budget["model"] = sys_model
+    budget["cyclic"] = _cyclic_error(fr_seg, fits.phase, segment)
     sigma = math.sqrt(sum(v ** 2 for v in budget.values()))
 
     frames_out = table.assign(fringes=cumulative)
@@ -628,6 +629,39 @@ def _gap_json(row: dict) -> dict:
         out[k] = v
     out["description"] = describe(row.get("reason", ""))
     return out
+
+
+def _cyclic_error(fringes: np.ndarray, phase: np.ndarray, segment: np.ndarray) -> float:
+    """Sigma of the total from a once- or twice-per-fringe (cyclic) phase error, estimated from the data.
+
+    Within each trusted stretch that passes at least 1.5 fringes, the count minus its
+    smooth trend (Savitzky-Golay over about two fringes) is regressed on cos/sin of
+    the phase and of twice the phase. Motion noise is not locked to the phase and
+    averages out; a cyclic error is. The total carries it at both end frames, so the
+    term is sqrt(2) times its rms.
+    """
+    from scipy.signal import savgol_filter
+
+    res, ph = [], []
+    for s in np.unique(segment[segment >= 0]):
+        idx = np.flatnonzero(segment == s)
+        f = fringes[idx]
+        span = float(np.nanmax(f) - np.nanmin(f))
+        if idx.size < 20 or span < 1.5:
+            continue
+        per_fringe = idx.size / span
+        win = int(max(7, 2 * per_fringe)) | 1
+        if win >= idx.size:
+            continue
+        res.append(f - savgol_filter(f, win, 2))
+        ph.append(phase[idx])
+    if not res:
+        return 0.0
+    r = np.concatenate(res)
+    p = np.concatenate(ph)
+    A = np.column_stack([np.cos(p), np.sin(p), np.cos(2 * p), np.sin(2 * p)])
+    coef = np.linalg.lstsq(A, r, rcond=None)[0]
+    return float(math.sqrt(2.0) * math.sqrt(0.5 * float((coef ** 2).sum())))
 
 
 def _endpoint_change(alt_phase: np.ndarray, nom_phase: np.ndarray, segment: np.ndarray) -> float:
