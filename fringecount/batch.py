@@ -913,6 +913,19 @@ def _run_dask(items: list[BatchItem], out_dir: Path, *, address: Any, connect_ti
 
 # --------------------------------------------------------------------------- the batch
 
+def _rows_from_disk(items: list[BatchItem], rows: dict[str, dict], out_dir: Path) -> None:
+    """Add rows for clips without one whose complete result is on disk."""
+    for item in items:
+        folder = out_dir / item.result_name
+        if item.name in rows or not (folder / _SUMMARY).exists():
+            continue
+        try:
+            summary = _read_summary(folder)
+        except (OSError, ValueError):
+            continue
+        rows[item.name] = _row(item, {"status": "ok", "summary": summary, "reused": False, "elapsed_s": None})
+
+
 def available_cores() -> int:
     """CPU cores this process may run on (the default number of local jobs)."""
     try:
@@ -1087,6 +1100,8 @@ def run_batch(source: str | os.PathLike | list[BatchItem], out_dir: str | os.Pat
                            finish=finish)
                 clean_stale_staging(out_dir)  # a worker stopped mid-write leaves its staging folder
         finally:
+            if not force:  # interrupted: results that landed before their worker could report
+                _rows_from_disk(items, rows, out_dir)
             if rows:
                 written = _write_table(current_table(), out_dir)
     return BatchReport(current_table(), out_dir, tuple(written))

@@ -22,6 +22,7 @@ import pandas as pd
 import pytest
 from hypothesis import HealthCheck, given, settings, strategies as st
 
+from fringecount import batch as B
 from fringecount.cli import main
 
 pytestmark = pytest.mark.skipif(
@@ -231,41 +232,55 @@ def _snapshot(out: Path) -> dict[str, dict[str, tuple[int, int]]]:
     return snap
 
 
-@pytest.mark.slow
-def test_batch_killed_with_sigkill_resumes_without_losing_results(tmp_path):
-    src = tmp_path / "archive"
-    src.mkdir()
-    n_clips = 3
-    for k in range(n_clips):
-        np.save(src / f"run_{k}.npy", _frames(n=30, seed=k))
-    (src / "broken.avi").write_bytes(b"RIFF\x00\x00\x00\x00AVI junk")
-    out = tmp_path / "out"
-    env = {**os.environ, "PYTHONWARNINGS": "ignore"}
-    # One clip at a time, so the kill lands after the first result and before the last.
-    proc = subprocess.Popen(_batch_cmd(src, out, 1), env=env, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
+def _stop_after_results(cmd: list[str], out: Path, n_results: int, how: signal.Signals, env) -> int:
+    """Start the batch, send ``how`` once ``n_results`` results are complete; return its exit code."""
+    proc = subprocess.Popen(cmd, env=env, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
     try:
         deadline = time.monotonic() + 60
-        while time.monotonic() < deadline and not (out.is_dir() and _snapshot(out)):
+        while time.monotonic() < deadline and not (out.is_dir() and len(_snapshot(out)) >= n_results):
             assert proc.poll() is None, proc.stderr.read().decode()
             time.sleep(0.02)
-        assert _snapshot(out), "no result appeared within 60 s"
-        proc.kill()  # SIGKILL: no cleanup of any kind in the batch process
-        proc.wait(timeout=10)
+        assert len(_snapshot(out)) >= n_results, f"no {n_results} results within 60 s"
+        proc.send_signal(how)
+        return proc.wait(timeout=30)
     finally:
         if proc.poll() is None:
             proc.kill()
             proc.wait()
         proc.stderr.close()
-    before = _snapshot(out)
-    assert 1 <= len(before) < n_clips  # killed part-way through
 
+
+@pytest.mark.slow
+def test_batch_stopped_and_killed_resumes_without_losing_results(tmp_path):
+    src = tmp_path / "archive"
+    src.mkdir()
+    n_clips = 4
+    for k in range(n_clips):
+        np.save(src / f"run_{k}.npy", _frames(n=30, seed=k))
+    (src / "broken.avi").write_bytes(b"RIFF\x00\x00\x00\x00AVI junk")
+    out = tmp_path / "out"
+    env = {**os.environ, "PYTHONWARNINGS": "ignore"}
+    # One clip at a time, so that each stop lands after a new result and before the last.
+    # 1. SIGTERM (a batch system ending the job): stops like Ctrl-C and writes the table.
+    code = _stop_after_results(_batch_cmd(src, out, 1), out, 1, signal.SIGTERM, env)
+    assert code == 130
+    first = _snapshot(out)
+    table = pd.read_csv(out / "batch.csv")
+    assert set(table["clip"]) <= {f"run_{k}.npy" for k in range(n_clips)} | {"broken.avi"}
+    assert {c for c in table.loc[table["status"] == "ok", "clip"]} == {
+        f"run_{k}.npy" for k in range(n_clips) if B.result_folder_name(f"run_{k}.npy") in first}
+    # 2. SIGKILL: no cleanup of any kind in the batch process.
+    _stop_after_results(_batch_cmd(src, out, 1), out, len(first) + 1, signal.SIGKILL, env)
+    second = _snapshot(out)
+    assert len(first) < len(second) < n_clips  # stopped part-way through, twice
+    # 3. The same command finishes the rest and touches nothing that was finished.
     done = subprocess.run(_batch_cmd(src, out, 2), env=env, capture_output=True, text=True, timeout=120)
     assert done.returncode == 1, done.stderr  # the broken clip failed; exit 1 says so
     after = _snapshot(out)
     assert len(after) == n_clips
-    for name, files in before.items():  # finished results untouched: same inodes, same mtimes
+    for name, files in second.items():  # finished results untouched: same inodes, same mtimes
         assert after[name] == files
     table = pd.read_csv(out / "batch.csv").set_index("clip")
     assert dict(table["status"]) == {**{f"run_{k}.npy": "ok" for k in range(n_clips)}, "broken.avi": "error"}
-    assert table["reused"].sum() == len(before)
+    assert table["reused"].sum() == len(second)
     assert not [p.name for p in out.iterdir() if p.name.startswith(".") and p.name != ".batch.lock"]

@@ -15,7 +15,9 @@ Exit status: 0 when every clip is ``ok``, 1 when at least one clip failed,
 from __future__ import annotations
 
 import argparse
+import contextlib
 import json
+import signal
 import sys
 
 import pandas as pd
@@ -66,6 +68,23 @@ def _progress_bar(total: int, quiet: bool):
                 desc="batch", leave=True)
 
 
+@contextlib.contextmanager
+def _terminate_as_interrupt():
+    """Treat SIGTERM (a batch system stopping the job) like Ctrl-C: stop workers, write the table."""
+    def stop(signum, frame):
+        raise KeyboardInterrupt
+
+    try:
+        previous = signal.signal(signal.SIGTERM, stop)
+    except ValueError:  # not the main thread: leave SIGTERM alone
+        yield
+        return
+    try:
+        yield
+    finally:
+        signal.signal(signal.SIGTERM, previous)
+
+
 def _plain(value):
     """A table cell as a plain JSON value (full float precision, missing as null)."""
     if value is None or (not isinstance(value, str) and pd.isna(value)):
@@ -93,8 +112,9 @@ def run(args: argparse.Namespace) -> int:
         bar.update(1)
 
     try:
-        report = run_batch(items, args.out, jobs=args.jobs, force=args.force,
-                           report=args.report, dask=args.dask, timeout_s=args.timeout, progress=progress)
+        with _terminate_as_interrupt():
+            report = run_batch(items, args.out, jobs=args.jobs, force=args.force,
+                               report=args.report, dask=args.dask, timeout_s=args.timeout, progress=progress)
     finally:
         bar.close()
     table = report.table
