@@ -573,3 +573,15 @@ def test_a_worker_stopped_mid_write_leaves_no_staging_folder(tmp_path):
     t = B.run_batch(src, out, jobs=2, timeout_s=2.0, analyse=scripted_analyse).table
     assert list(t["status"]) == ["ok", "error"] and "timeout" in t.loc[1, "error"]
     assert sorted(p.name for p in out.iterdir() if p.name.startswith(".")) == [".batch.lock"]
+
+
+def test_manifest_examples_in_the_docs_are_valid(tmp_path):
+    # docs/batch.md shows a CSV and a TOML manifest: both must read as documented.
+    import re
+
+    doc = (Path(__file__).resolve().parents[1] / "docs" / "batch.md").read_text(encoding="utf-8")
+    for lang in ("csv", "toml"):
+        block = re.search(rf"```{lang}\n(.*?)```", doc, re.S).group(1)
+        items = B.read_manifest(_write(tmp_path / f"example.{lang}", block))
+        assert items[0].name == "tilt/plate_a.avi" and items[0].settings.center == (318.0, 242.0)
+        assert items[0].model == "plate-rotation" and items[0].settings.fps == 60.0
