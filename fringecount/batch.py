@@ -249,7 +249,8 @@ def find_clips(folder: str | os.PathLike, *, settings: CountSettings | None = No
         filenames = sorted(n for n in filenames if not n.startswith("."))
         clip_extensions = VIDEO_EXTENSIONS + STACK_EXTENSIONS
         if _is_image_folder(here, filenames):
-            items.append(BatchItem(here, rel_here.as_posix() if here != root else ".", settings))
+            # The searched folder itself holding the images is named after itself.
+            items.append(BatchItem(here, rel_here.as_posix() if here != root else root.absolute().name, settings))
             clip_extensions = tuple(e for e in clip_extensions if e not in (".tif", ".tiff"))
         for name in filenames:
             if Path(name).suffix.lower() in clip_extensions:

@@ -585,3 +585,24 @@ def test_manifest_examples_in_the_docs_are_valid(tmp_path):
         items = B.read_manifest(_write(tmp_path / f"example.{lang}", block))
         assert items[0].name == "tilt/plate_a.avi" and items[0].settings.center == (318.0, 242.0)
         assert items[0].model == "plate-rotation" and items[0].settings.fps == 60.0
+
+
+def test_a_folder_of_images_given_as_source_is_one_clip(tmp_path):
+    for k in range(3):
+        _touch(tmp_path / "run7" / f"img{k}.png")
+    (item,) = B.find_clips(tmp_path / "run7")
+    assert item.name == "run7" and item.clip == tmp_path / "run7"
+
+
+@needs_core
+def test_table_is_rewritten_while_the_batch_runs(tmp_path):
+    src = _archive(tmp_path / "src", {"a.avi": "ok 1.0", "b.avi": "ok 2.0", "c.avi": "bad"})
+    seen_rows = []
+
+    def progress(row):  # the table on disk already holds every clip finished before this one
+        table = tmp_path / "out" / "batch.csv"
+        seen_rows.append(len(pd.read_csv(table)) if table.exists() else 0)
+
+    B.run_batch(src, tmp_path / "out", jobs=0, analyse=scripted_analyse, progress=progress, flush_every_s=0.0)
+    assert seen_rows == [0, 1, 2]
+    assert len(pd.read_csv(tmp_path / "out" / "batch.csv")) == 3
