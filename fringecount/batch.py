@@ -42,6 +42,7 @@ import math
 import multiprocessing
 import multiprocessing.connection
 import os
+import pickle
 import re
 import shutil
 import signal
@@ -790,7 +791,13 @@ def _run_local(items: list[BatchItem], out_dir: Path, *, jobs: int, options: dic
                 life_reader, life_writer = ctx.Pipe(duplex=False)
                 process = ctx.Process(target=_worker_main, name=f"fringecount-batch {item.name}",
                                       args=(sender, life_reader, item, out_dir, options))
-                process.start()
+                try:
+                    process.start()
+                except (pickle.PicklingError, AttributeError, TypeError) as exc:
+                    for end in (receiver, sender, life_reader, life_writer):
+                        end.close()
+                    raise InputError(f"cannot send the analysis to a worker process ({_one_line(exc)}); "
+                                     "pass a module-level function as analyse, or jobs=0") from None
                 sender.close()
                 life_reader.close()
                 running[process.sentinel] = _Running(process, receiver, life_writer, item, time.monotonic())

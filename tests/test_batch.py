@@ -606,3 +606,9 @@ def test_table_is_rewritten_while_the_batch_runs(tmp_path):
     B.run_batch(src, tmp_path / "out", jobs=0, analyse=scripted_analyse, progress=progress, flush_every_s=0.0)
     assert seen_rows == [0, 1, 2]
     assert len(pd.read_csv(tmp_path / "out" / "batch.csv")) == 3
+
+
+def test_an_analysis_that_cannot_reach_a_worker_is_an_input_error(tmp_path):
+    src = _archive(tmp_path / "src", {"a.avi": "ok 1.0"})
+    with pytest.raises(InputError, match="module-level function"):
+        B.run_batch(src, tmp_path / "out", jobs=1, analyse=lambda clip, settings: None)
