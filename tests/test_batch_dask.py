@@ -75,10 +75,10 @@ def test_unreachable_scheduler_is_an_input_error(tmp_path, monkeypatch):
     # Nothing listens on this loopback address; keep the connect timeout short.
     import dask
 
-    with dask.config.set({"distributed.comm.timeouts.connect": "1s"}):
+    with dask.config.set({"distributed.comm.timeouts.connect": "0.5s"}):
         with pytest.raises(InputError, match="cannot reach the Dask scheduler"):
             B.run_batch(src, tmp_path / "out", dask="tcp://127.0.0.1:9", analyse=scripted_analyse,
-                        dask_timeout_s=2.0)
+                        dask_timeout_s=0.5)
 
 
 def test_missing_dask_is_a_clear_input_error(tmp_path, monkeypatch):
