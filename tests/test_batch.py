@@ -612,3 +612,19 @@ def test_an_analysis_that_cannot_reach_a_worker_is_an_input_error(tmp_path):
     src = _archive(tmp_path / "src", {"a.avi": "ok 1.0"})
     with pytest.raises(InputError, match="module-level function"):
         B.run_batch(src, tmp_path / "out", jobs=1, analyse=lambda clip, settings: None)
+
+
+@needs_core
+def test_cli_lists_failed_clips_at_the_end(tmp_path, capsys, monkeypatch):
+    import fringecount.cli.batch as cli_batch
+    from fringecount.cli import main
+
+    monkeypatch.setattr(cli_batch, "_LISTED_FAILURES", 2)  # 20 in use; 2 keeps the test short
+    src = tmp_path / "src"
+    for k in range(3):
+        _touch(src / f"bad_{k}.avi", b"not a video")
+    assert main(["batch", str(src), "--out", str(tmp_path / "out"), "--jobs", "2"]) == 1
+    lines = [ln for ln in capsys.readouterr().err.splitlines() if ln.startswith("fringecount: ")]
+    assert lines[0] == f"fringecount: batch: 0 ok (0 already done), 3 failed; table {tmp_path / 'out' / 'batch.csv'}"
+    assert [ln.split(":")[2].strip() for ln in lines[1:3]] == ["bad_0.avi", "bad_1.avi"]
+    assert lines[3].startswith("fringecount: ... and 1 more failed clips") and len(lines) == 4

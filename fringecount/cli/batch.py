@@ -28,6 +28,9 @@ from ._options import add_clip_arguments, add_roi_arguments, settings_from_args
 
 __all__ = ["register", "run"]
 
+#: Failed clips named on stderr at the end (all of them are in batch.csv).
+_LISTED_FAILURES = 20
+
 
 def register(subparsers) -> None:
     """Add the ``batch`` subcommand to ``subparsers``."""
@@ -127,6 +130,10 @@ def run(args: argparse.Namespace) -> int:
         reused = int(table["reused"].sum())
         print(f"fringecount: batch: {report.n_ok} ok ({reused} already done), {report.n_failed} failed; "
               f"table {report.out_dir / 'batch.csv'}", file=sys.stderr)
-        for _, row in table[table["status"] != "ok"].iterrows():
+        failed_rows = table[table["status"] != "ok"]
+        for _, row in failed_rows.head(_LISTED_FAILURES).iterrows():
             print(f"fringecount: failed: {row['clip']}: {row['error']}", file=sys.stderr)
+        if len(failed_rows) > _LISTED_FAILURES:
+            print(f"fringecount: ... and {len(failed_rows) - _LISTED_FAILURES} more failed clips; "
+                  f"see the error column of {report.out_dir / 'batch.csv'}", file=sys.stderr)
     return 1 if report.n_failed else 0
