@@ -265,21 +265,21 @@ def measure_child(kind: str, path: Path, use_tracemalloc: bool) -> dict:
 CHILD_ENV: dict[str, str] = {}
 
 
-def snapshot_package(out_dir: Path, log) -> tuple[str, Path] | None:
-    """Export ``fringecount/`` at git HEAD into ``out_dir/snapshot-REV`` and return (rev, folder).
+def snapshot_package(out_dir: Path, log, rev: str = "HEAD") -> tuple[str, Path] | None:
+    """Export ``fringecount/`` at git ``rev`` (default HEAD) into ``out_dir/snapshot-REV`` and return (rev, folder).
 
     Other developers change the working tree while a long run goes on; measuring a
     fixed commit keeps all rows comparable and names exactly what was measured.
     """
     try:
-        rev = subprocess.run(["git", "-C", str(HERE.parent), "rev-parse", "--short", "HEAD"],
+        rev = subprocess.run(["git", "-C", str(HERE.parent), "rev-parse", "--short", rev],
                              capture_output=True, text=True, check=True).stdout.strip()
     except (OSError, subprocess.CalledProcessError):
         return None
     dest = out_dir / f"snapshot-{rev}"
     if not (dest / "fringecount" / "__init__.py").exists():
         dest.mkdir(parents=True, exist_ok=True)
-        archive = subprocess.run(["git", "-C", str(HERE.parent), "archive", "HEAD", "fringecount"],
+        archive = subprocess.run(["git", "-C", str(HERE.parent), "archive", rev, "fringecount"],
                                  capture_output=True, check=True).stdout
         subprocess.run(["tar", "-x", "-C", str(dest)], input=archive, check=True)
     log(f"measuring fringecount at commit {rev} (snapshot in {dest.relative_to(HERE.parent)})")
@@ -324,7 +324,7 @@ def measure_clip(spec: ClipSpec, path: Path, repeat: int, use_tracemalloc: bool,
     return row
 
 
-def profile_count(path: Path, out_txt: Path, log) -> None:
+def profile_count(path: Path, out_txt: Path, log, measured: str) -> None:
     """cProfile of count() on ``path`` (in a subprocess), sorted by cumulative time."""
     prof = OUT_DIR / (path.stem + ".prof")
     code = ("import cProfile, logging, sys\n"
@@ -337,7 +337,9 @@ def profile_count(path: Path, out_txt: Path, log) -> None:
             "prof.disable()\n"
             "prof.dump_stats(sys.argv[2])\n")
     log(f"profiling count() on {path.name}")
-    subprocess.run([sys.executable, "-c", code, str(path), str(prof)], check=True, env={**os.environ, **CHILD_ENV})
+    # cwd outside the repository: with -c the current folder comes first on sys.path
+    subprocess.run([sys.executable, "-c", code, str(path), str(prof)], check=True, cwd=str(OUT_DIR),
+                   env={**os.environ, **CHILD_ENV})
     import io
     import pstats
 
@@ -349,7 +351,7 @@ def profile_count(path: Path, out_txt: Path, log) -> None:
     text = buf.getvalue()
     root = str(HERE.parent) + os.sep
     out_txt.write_text(f"# cProfile of fringecount.pipeline.count on {path.name} "
-                       f"({_git_rev()}, {time.strftime('%Y-%m-%d %H:%M UTC', time.gmtime())})\n\n"
+                       f"({measured}, {time.strftime('%Y-%m-%d %H:%M UTC', time.gmtime())})\n\n"
                        + text.replace(root, ""))
     log(f"  written {out_txt.relative_to(HERE.parent)}")
 
@@ -478,13 +480,13 @@ def write_markdown(rows: list[dict], env: dict, out_md: Path, quick: bool, elaps
                   "Growth of the peak from the shortest to the longest clip of each size. A streaming "
                   "pipeline grows only by what it keeps per frame: three float32 profiles (nominal centre and "
                   "two shifted centres) of `n_bins` values, plus a float64 copy of the nominal one and the "
-                  "per-frame table, i.e. about 4 x n_bins x 4 B + ~0.2 KiB per frame; a pipeline that held the "
+                  "per-frame table, i.e. about (3 x 4 + 8) B x n_bins + ~0.2 KiB per frame; a pipeline that held the "
                   "clip would grow by a whole frame (`frame KiB`) per frame.", "",
                   "| frames | growth | decode peak change MiB (RSS / anon) | count peak change MiB (RSS / anon / py) | "
                   "count KiB/frame (RSS) | count KiB/frame (py) | n_bins | expected KiB/frame | frame KiB |",
                   "|---|---:|---:|---:|---:|---:|---:|---:|---:|"]
         for g in growth:
-            expect = (4 * g["n_bins"] * 4 + 200) / 1024
+            expect = (20 * g["n_bins"] + 200) / 1024
             lines.append(f"| {g['group']}: {g['from']} -> {g['to']} | {g['growth']:.0f}x | "
                          f"{_fmt(g['d_rss_decode_mib'], 1)} / {_fmt(g['d_anon_decode_mib'], 1)} | "
                          f"{_fmt(g['d_rss_count_mib'], 1)} / {_fmt(g['d_anon_count_mib'], 1)} / "
@@ -507,6 +509,7 @@ def main(argv=None) -> int:
     parser.add_argument("--profile-only", action="store_true", help="only the profile")
     parser.add_argument("--working-tree", action="store_true",
                         help="measure the live working tree instead of a snapshot of fringecount/ at git HEAD")
+    parser.add_argument("--rev", default="HEAD", help="git revision of fringecount/ to measure (default HEAD)")
     parser.add_argument("--out", type=Path, default=None, help="results markdown (default results/latest.md)")
     parser.add_argument("--from-json", type=Path, default=None,
                         help="only rewrite the markdown from a saved results JSON")
@@ -531,13 +534,13 @@ def main(argv=None) -> int:
     RESULTS_DIR.mkdir(parents=True, exist_ok=True)
     measured = "working tree"
     if not args.working_tree:
-        snap = snapshot_package(OUT_DIR, log)
+        snap = snapshot_package(OUT_DIR, log, args.rev)
         if snap is not None:
             CHILD_ENV["PYTHONPATH"] = os.pathsep.join([str(snap[1])] + [p for p in [os.environ.get("PYTHONPATH")] if p])
             measured = f"commit {snap[0]} (snapshot of fringecount/)"
     if args.profile_only:
         path = ensure_clip(ClipSpec(640, 480, 1000, "avi"), OUT_DIR, log)
-        profile_count(path, RESULTS_DIR / "profile_count_640x480x1000.txt", log)
+        profile_count(path, RESULTS_DIR / "profile_count_640x480x1000.txt", log, measured)
         return 0
     env = environment()
     env["measured_code"] = measured
@@ -555,7 +558,7 @@ def main(argv=None) -> int:
     log(f"written {out_md}")
     if args.profile:
         path = ensure_clip(ClipSpec(640, 480, 1000, "avi"), OUT_DIR, log)
-        profile_count(path, RESULTS_DIR / "profile_count_640x480x1000.txt", log)
+        profile_count(path, RESULTS_DIR / "profile_count_640x480x1000.txt", log, measured)
     return 0
 
 
