@@ -283,8 +283,21 @@ def locate_center(images: np.ndarray, *, mask: np.ndarray | None = None) -> Cent
         ext = (-(span - 1) / 2 * cols * 2, cols - 1 + (span - 1) * cols, -(span - 1) * rows, rows - 1 + (span - 1) * rows)
         gxy, _ = _coarse_search(imgs[: min(k, 4)], mask, ext)
         cands.append((gxy, ev(*gxy)))
-    start, c0 = max(cands, key=lambda t: t[1])
-    logger.debug("centre seeds %s -> start %s (contrast %.3f)", cands, start, c0)
-    if c0 < 0.02:
+    # raw contrasts of far-apart starts are not comparable (fine rings vanish in the coarse grid):
+    # refine the radial-symmetry seed and the two best grid points, keep the best refined one
+    cands.sort(key=lambda t: t[1], reverse=True)
+    starts = [c[0] for c in cands[:2]]
+    if seeds:
+        sx, sy = np.median(np.asarray(seeds), axis=0)
+        if abs(sx) < 20 * cols and abs(sy) < 20 * rows and (float(sx), float(sy)) not in starts:
+            starts.append((float(sx), float(sy)))
+    quick = []
+    for s in starts:
+        r = refine_center(imgs[: min(k, 4)], s, mask=mask, max_error_frames=0)
+        if r:
+            quick.append(r)
+    logger.debug("centre seeds %s -> refined %s", cands, [(q.x, q.y, q.contrast) for q in quick])
+    if not quick or max(q.contrast for q in quick) < 0.02:
         return FailedFit("no ring pattern found (azimuthal averaging keeps under 2% of the fringe variance)")
-    return refine_center(imgs, start, mask=mask)
+    best = max(quick, key=lambda q: q.contrast)
+    return refine_center(imgs, best.xy, mask=mask, step_px=0.5)

@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import numpy as np
 import pandas as pd
+from scipy import ndimage
 
 __all__ = ["REASONS", "flag_frames", "find_gaps", "unwrap_segments"]
 
@@ -63,14 +64,30 @@ def flag_frames(table: pd.DataFrame, *, min_visibility: float | None = None,
     n = len(t)
     b = t["brightness"].to_numpy(float)
     v = t["visibility"].to_numpy(float)
-    bright_ref = np.nanpercentile(b, 75) if n else 0.0
-    dark = ~(b > 0.25 * bright_ref)
+    bright_ref = np.nanpercentile(b, 90) if n else 0.0
+    # a blocked beam leaves the camera's background; a dark fringe in a nearly uniform field
+    # still keeps (1 - V) of the light, so the threshold sits well below the bright level
+    dark = ~(b > 0.12 * bright_ref)
+    if dark.any() and (~dark).any():
+        # frames next to a dark interval that were dark for part of their exposure: their
+        # phase is biased (the exposure centroid moved), so they join the interval
+        idx = np.arange(n)
+        lit = b > 0.5 * bright_ref  # reference from clearly lit frames only
+        lit = lit if lit.any() else ~dark
+        local = ndimage.median_filter(np.interp(idx, idx[lit], b[lit]), size=min(31, 2 * (n // 2) + 1),
+                                      mode="nearest")
+        partial = b < 0.85 * local
+        for _ in range(n):
+            nxt = dark | (partial & (np.r_[False, dark[:-1]] | np.r_[dark[1:], False]))
+            if (nxt == dark).all():
+                break
+            dark = nxt
     vis_ref = np.nanpercentile(v[~dark], 75) if (~dark).any() else 0.0
     vmin = min_visibility if min_visibility is not None else 0.35 * vis_ref
     noisy = ~(t["phase_sigma"].to_numpy(float) < 2 * np.pi * max_phase_sigma_fringes)
     low = (~dark) & ((v < vmin) | noisy | ~np.isfinite(v))
-    sat = (~dark) & ((t["saturated_fraction"].to_numpy(float) > 0.25)
-                     | (t["valid_fraction"].to_numpy(float) < 0.6)) & ~low
+    # saturated pixels are masked; a frame is lost to saturation only when too few bins are left
+    sat = (~dark) & (t["valid_fraction"].to_numpy(float) < 0.4) & ~low
     lost = ~t["center_ok"].to_numpy(bool) if "center_ok" in t else np.zeros(n, bool)
     if "nonradial_fraction" in t:
         # fringes still there but no longer symmetric about the centre: the centre was lost

@@ -27,7 +27,7 @@ import pandas as pd
 
 from . import __version__
 from .bridge import bridge_gaps, read_wavelength_log
-from .center import CenterFit, fringe_images, locate_center, refine_center
+from .center import CenterFit, fringe_images, locate_center, radial_symmetry_center, refine_center, ring_contrast
 from .errors import ClipError, InputError, NoFringesError, SettingsError
 from .frames import FrameSource, open_frames
 from .gaps import describe, find_gaps, flag_frames, unwrap_segments
@@ -75,9 +75,11 @@ class Geometry:
     contrast: float
 
 
-#: Rings closer than this (px) are not resolved by the pixels; they are left out of the fit.
-#: Sampling theory needs more than 2 px per period; 3 px leaves room for pixel averaging.
-MIN_RING_PERIOD_PX = 3.0
+#: Rings closer than this (px) are left out of the fit. Azimuthal averaging samples r at the
+#: irregular distances of the pixel centres, so rings below the 2 px grid limit still show in the
+#: profile; what limits them is the 1 px pixel aperture, whose response sinc(1/period) falls
+#: below one half at 1.6 px.
+MIN_RING_PERIOD_PX = 1.6
 
 
 # ----------------------------------------------------------------------------- helpers
@@ -338,12 +340,21 @@ def _drift_track(block_samples, geom: Geometry, settings: CountSettings, shape, 
     """
     mask = _crop_mask(shape, settings.crop)
     ks, xs, ys, cs = [], [], [], []
+    prev = geom.center.xy
     for samples in block_samples:
         for k, img in samples:
-            r = refine_center(fringe_images(img), geom.center.xy, mask=mask, step_px=0.5,
+            fimg = fringe_images(img)
+            starts = [geom.center.xy, prev]
+            seed = radial_symmetry_center(np.where(mask, fimg[0], 0) if mask is not None else fimg[0])
+            if seed and math.hypot(seed[0] - geom.center.x, seed[1] - geom.center.y) < 0.25 * max(shape):
+                starts.append(seed[:2])
+            ev = [ring_contrast(fimg, s, mask=mask) for s in starts]
+            start = starts[int(np.argmax(ev))]
+            r = refine_center(fimg, start, mask=mask, step_px=0.5,
                               inner_px=settings.inner_radius_px, outer_px=settings.outer_radius_px,
                               max_error_frames=0)
             if r:
+                prev = r.xy
                 ks.append(k)
                 xs.append(r.x)
                 ys.append(r.y)
@@ -451,7 +462,7 @@ def _count_open(source: FrameSource, settings: CountSettings, progress, t_start)
                 _bins_for(geom, shape, settings, (center[0], center[1] + delta), like=nominal)]
 
     fixed = make_bins(base)
-    block_len = max(48, int(math.ceil(n / 16)))
+    block_len = max(16, int(math.ceil(n / 16)))
     n_blocks = int(math.ceil(n / block_len))
     track_drift = geom.kind == "rings" and settings.track_center and settings.center is None
     block_samples = [[] for _ in range(n_blocks)] if track_drift else None
@@ -528,10 +539,11 @@ def _count_open(source: FrameSource, settings: CountSettings, progress, t_start)
     sys_center = 0.0
     if geom.kind == "rings" and geom.center is not None and len(stream.prof) == 3:
         errs = (geom.center.x_err, geom.center.y_err)
-        if drift_info.get("drift_accepted"):
-            # the end frames sit off the smooth track by the single-frame scatter (shake)
+        if "frame_scatter_px" in drift_info:
+            # the end frames sit off the (constant or drifting) centre by the single-frame scatter (shake)
             errs = tuple(math.hypot(a, b) for a, b in zip(drift_info["trend_sigma_px"],
                                                            drift_info["frame_scatter_px"]))
+            errs = (max(errs[0], geom.center.x_err), max(errs[1], geom.center.y_err))
         for j, err in ((1, errs[0]), (2, errs[1])):
             alt = fit_phases(stream.prof[j][:got].astype(float), stream.bins[j].coord, stream.bins[j].counts, model)
             d = _endpoint_change(alt.phase, fits.phase, segment)
