@@ -523,8 +523,7 @@ def _count_open(source: FrameSource, settings: CountSettings, progress, t_start)
     table = flag_frames(table, min_visibility=settings.min_visibility,
                         max_step_fringes=settings.max_step_fringes)
     if not table["trusted"].any():
-        raise NoFringesError("no frame has fringes that can be followed (all dark, washed out, saturated or "
-                             "finer than the pixels); check the recording and the ROI")
+        raise NoFringesError(_no_trusted_message(table, settings))
     segment, gaps = find_gaps(table)
     fr_seg = unwrap_segments(fits.phase, segment)
     sig_fr = fits.phase_sigma / (2 * np.pi)
@@ -619,6 +618,24 @@ def _count_open(source: FrameSource, settings: CountSettings, progress, t_start)
         "elapsed_s": round(time.perf_counter() - t_start, 3),
     }
     return CountResult(frames_out.reset_index(drop=True), gaps_out.reset_index(drop=True), summary, settings, model)
+
+
+def _no_trusted_message(table: pd.DataFrame, settings: CountSettings) -> str:
+    """One line naming why no frame could be followed, and what to do."""
+    reasons = table["reason"].value_counts()
+    top = reasons.index[0] if len(reasons) else ""
+    fixes = {
+        "too_fast": (f"the fringes move more than --max-step {settings.max_step_fringes} fringe between frames "
+                     "almost everywhere; record at a higher frame rate or sweep slower (or raise --max-step, "
+                     "at most 0.5)"),
+        "dark": "the frames are dark; check that the beam reaches the camera and the exposure",
+        "low_visibility": ("the fringes are washed out in every frame; check alignment and focus, "
+                           "or tune the region with 'fringecount roi'"),
+        "saturated": "too many pixels are saturated; lower the exposure or the laser power, or pass --saturation",
+        "center_lost": "the ring centre could not be followed; give --center X,Y or try --fixed-center",
+        "unreadable": "no frame could be decoded; check the file",
+    }
+    return "no frame has fringes that can be followed: " + fixes.get(top, "check the recording and the ROI")
 
 
 def _f(v) -> float | None:

@@ -296,9 +296,6 @@ def test_count_matches_generator_truth(name, case, tmp_path):
     check_against_truth(name, case, result, truth, kw)
 
 
-@pytest.mark.xfail(strict=True, raises=AssertionError,
-                   reason="0.40 fringe/frame over the whole clip (> max step 0.35): NoFringesError says "
-                          "'all dark, washed out, saturated or finer than the pixels', never 'too fast'")
 def test_whole_clip_too_fast_names_the_cause(tmp_path):
     # Expected: either a count whose gaps say too_fast, or an error naming the speed and the
     # --max-step setting (0.40 < 0.5 is still unambiguous: Itoh 1982 aliasing limit).
