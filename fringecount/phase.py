@@ -47,6 +47,7 @@ class RadialModel:
     order: int
     envelope_x: np.ndarray | None = None
     basis: np.ndarray | None = None   # (3, n_bins) mean, cos and sin patterns (few-fringe mode)
+    gamma: float = 0.0                # few-fringe mode: growth of the radial phase per fringe counted
 
     @property
     def mode(self) -> str:
@@ -423,7 +424,8 @@ def temporal_model(P, x, counts, scale, refine: int = 3) -> "RadialModel":
     basis = np.vstack([mean, alpha, beta])
     env = np.maximum(mean / max(float(mean.mean()), 1e-12), 1e-3)
     model = RadialModel(scale, (0.0, 0.0), float(abs(slope)), env, 0, x, basis)
-    return _refine_temporal(model, P, counts, iterations=refine)
+    model = _refine_temporal(model, P, counts, iterations=refine)
+    return _fit_growth(model, P, counts, x)
 
 
 def _refine_temporal(model, P, counts, iterations=3):
@@ -453,12 +455,24 @@ def _refine_temporal(model, P, counts, iterations=3):
     return model
 
 
-def _fit_temporal(P, model, counts) -> "PhaseFits":
+def _pattern_phase(model):
+    """Amplitude and radial phase (zero on axis) of the few-fringe pattern."""
+    _, al, be = model.basis
+    return np.hypot(al, be), np.unwrap(np.arctan2(be, al))
+
+
+def _fit_temporal(P, model, counts, dN=None, *, return_rss=False):
+    """Per-frame least squares on the clip patterns; with ``model.gamma`` and the running count
+    ``dN`` (fringes), the radial phase of the pattern grows as psi(x) (1 + gamma dN)."""
     Pf = np.where(np.isfinite(P), P, np.nan)
     valid = np.isfinite(Pf)
     m, al, be = model.basis
     n, nb = P.shape
     X = np.stack([m, al, be], axis=1)                      # (nb, 3)
+    grow = model.gamma != 0.0 and dN is not None
+    if grow:
+        amp_x, psi_x = _pattern_phase(model)
+    rss_total = 0.0
     phi = np.zeros(n)
     sphi = np.zeros(n)
     amp = np.zeros(n)
@@ -471,11 +485,16 @@ def _fit_temporal(P, model, counts) -> "PhaseFits":
             phi[i], sphi[i], amp[i], resid[i] = 0.0, np.inf, 0.0, np.inf
             continue
         wv = np.sqrt(counts[ok])
-        Xi = X[ok] * wv[:, None]
+        if grow:
+            ps = psi_x * (1.0 + model.gamma * dN[i])
+            Xi = np.stack([m, amp_x * np.cos(ps), amp_x * np.sin(ps)], axis=1)[ok] * wv[:, None]
+        else:
+            Xi = X[ok] * wv[:, None]
         yi = Pf[i, ok] * wv
         G = Xi.T @ Xi
         beta = np.linalg.solve(G + 1e-12 * np.trace(G) * np.eye(3), Xi.T @ yi)
         r = yi - Xi @ beta
+        rss_total += float(r @ r)
         s2 = float(r @ r) / max(ok.sum() - 3, 1)
         cov = np.linalg.inv(G) * s2
         bb, cc, dd = beta
@@ -492,8 +511,60 @@ def _fit_temporal(P, model, counts) -> "PhaseFits":
     bcoef = brightness / max(float((m * counts).sum() / wsum), 1e-300)
     with np.errstate(invalid="ignore", divide="ignore"):
         vis = np.where(bcoef > 0, amp / bcoef * pattern_vis, 0.0)
-    return PhaseFits(phase=phi, phase_sigma=sphi, visibility=vis, brightness=brightness,
+    fits = PhaseFits(phase=phi, phase_sigma=sphi, visibility=vis, brightness=brightness,
                      kappa=np.full(n, model.kappa), residual=resid, valid_fraction=vf)
+    return (fits, rss_total) if return_rss else fits
+
+
+def _running_count(fits: PhaseFits) -> np.ndarray:
+    """Approximate count (fringes) about its clip mean, from wrapped phases (frames without fringes interpolated)."""
+    good = np.isfinite(fits.phase) & (fits.visibility > 0.3 * np.nanmedian(fits.visibility))
+    idx = np.arange(fits.phase.size)
+    if good.sum() < 2:
+        return np.zeros(fits.phase.size)
+    un = np.unwrap(fits.phase[good]) / (2 * np.pi)
+    # centred: the clip patterns are an average over the clip, i.e. they belong to its mean count
+    return np.interp(idx, idx[good], un - un.mean())
+
+
+def _fit_growth(model, P, counts, coord_x):
+    """Zero the pattern's radial phase on axis and fit its growth per counted fringe (gamma).
+
+    With few rings, the phase fitted to the whole field is a field-weighted average;
+    off axis the order changes by cos(theta) per on-axis fringe, so the pattern's
+    radial phase grows as the count runs. Modelling that growth (one parameter,
+    kept only if it lowers the residual by more than 25 noise variances) puts the
+    phase back on the axis.
+    """
+    amp_x, psi_x = _pattern_phase(model)
+    w = amp_x ** 2 * counts
+    if w.sum() <= 0:
+        return model
+    coef = np.polyfit(coord_x, psi_x, 2, w=np.sqrt(w))
+    psi0 = psi_x - coef[-1]                     # zero at x = 0, the ring centre
+    m = model.basis[0]
+    base = RadialModel(model.coord_scale, model.shape, model.kappa, model.envelope, 0, model.envelope_x,
+                       np.vstack([m, amp_x * np.cos(psi0), amp_x * np.sin(psi0)]))
+    fits0, rss0 = _fit_temporal(P, base, counts, return_rss=True)
+    dN = _running_count(fits0)
+    span = float(np.ptp(dN))
+    if span < 0.5 or float(np.max(np.abs(psi0))) < 0.5:
+        return base
+    npts = float(np.isfinite(P).sum())
+    s2 = rss0 / max(npts - 3 * P.shape[0], 1)
+
+    def rss(g):
+        trial = RadialModel(base.coord_scale, base.shape, base.kappa, base.envelope, 0, base.envelope_x,
+                            base.basis, float(g))
+        return _fit_temporal(P, trial, counts, dN, return_rss=True)[1]
+
+    bound = 2.0 / max(span, 1.0)
+    res = optimize.minimize_scalar(rss, bounds=(-bound, bound), method="bounded", options={"xatol": 1e-5})
+    if rss0 - res.fun > 25 * s2:
+        logger.debug("few-fringe pattern grows by gamma = %.4g per fringe", res.x)
+        return RadialModel(base.coord_scale, base.shape, base.kappa, base.envelope, 0, base.envelope_x,
+                           base.basis, float(res.x))
+    return base
 
 
 def fit_phases(profiles: np.ndarray, coord: np.ndarray, counts: np.ndarray, model: RadialModel, *,
@@ -507,7 +578,12 @@ def fit_phases(profiles: np.ndarray, coord: np.ndarray, counts: np.ndarray, mode
     """
     P = np.asarray(profiles, dtype=float)
     if model.basis is not None:
-        return _fit_temporal(P, model, np.asarray(counts, float))
+        counts = np.asarray(counts, float)
+        fits = _fit_temporal(P, model, counts)
+        if model.gamma != 0.0:
+            for _ in range(2):
+                fits = _fit_temporal(P, model, counts, _running_count(fits))
+        return fits
     n, nb = P.shape
     x = coord / model.coord_scale
     h = model.h(x)

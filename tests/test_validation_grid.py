@@ -169,16 +169,14 @@ WORKING = {
     "drift_3px_s": Case(S.Scene(center_xy=C0, center_drift_px_s=(3.0, -1.5)), _mirror(), n=125),
     "drift_1px_s_100_frames": Case(S.Scene(center_xy=C0, center_drift_px_s=(1.0, -0.5)), _mirror(), n=100),
     "dark_half_lit_edges": Case(S.Scene(center_xy=C0, dark_intervals_s=((0.8, 1.6),)), _mirror()),
+    "one_ring": Case(S.Scene(center_xy=C0), _mirror(d0_m=0.03e-3)),
 }
 
 # ------------------------------------------------------------------ cases that fail today
 _FAILING = {
-    "one_ring": (Case(S.Scene(center_xy=C0), _mirror(d0_m=0.03e-3)),
-                 "few-fringe (temporal) mode measures the count at the ROI's weighted field angle, not on axis: "
-                 "a mirror sweep counts 2 dd cos(theta)/lambda there, -0.024 of 2.95 fringes (sigma 0.020 now "
-                 "covers it, but the bias is > 0.01)"),
     "half_ring": (Case(S.Scene(center_xy=C0), _mirror(d0_m=0.012e-3)),
-                  "as one_ring with 0.4 ring in the field: error -0.034 fringe"),
+                  "0.4 ring in the field: error -0.017 fringe (the on-axis growth of the pattern is fitted, "
+                  "but with under half a ring the axis is extrapolated far)"),
     "straight_4_fringes_auto": (Case(S.Scene(geometry="straight", carrier_cyc_px=(0.025, 0.0)), _mirror(), sign=-1),
                                 "auto geometry takes 4 straight fringes for rings centred ~680 px off the frame "
                                 "(equal contrast, rings win ties); the ring fit then raises NoFringesError "
