@@ -21,6 +21,7 @@ least-squares covariance with the uncertainty of the smoothed ``kappa``.
 
 from __future__ import annotations
 
+import dataclasses
 import logging
 import math
 from dataclasses import dataclass
@@ -48,6 +49,7 @@ class RadialModel:
     envelope_x: np.ndarray | None = None
     basis: np.ndarray | None = None   # (3, n_bins) mean, cos and sin patterns (few-fringe mode)
     gamma: float = 0.0                # few-fringe mode: growth of the radial phase per fringe counted
+    sign_known: bool = True           # False when the field shows too little radial structure to tell
 
     @property
     def mode(self) -> str:
@@ -419,13 +421,19 @@ def temporal_model(P, x, counts, scale, refine: int = 3) -> "RadialModel":
     psi = np.unwrap(np.arctan2(beta, alpha))
     wt = (alpha ** 2 + beta ** 2) * counts
     slope = np.polyfit(x, psi, 1, w=np.sqrt(wt))[0]
+    # the sign of the count rests on the direction the pattern's phase runs across the field
+    # (rings expanding or collapsing); a nearly uniform field, or one whose phase turns back,
+    # cannot tell it
+    local = np.gradient(psi, x)
+    same = float((wt * (np.sign(local) == np.sign(slope))).sum() / max(float(wt.sum()), 1e-300))
+    sign_known = bool(abs(slope) * float(np.ptp(x)) > 0.6 and same > 0.8)
     if slope < 0:  # rings expand when phi grows: psi must grow outward
         beta = -beta
     basis = np.vstack([mean, alpha, beta])
     env = np.maximum(mean / max(float(mean.mean()), 1e-12), 1e-3)
     model = RadialModel(scale, (0.0, 0.0), float(abs(slope)), env, 0, x, basis)
     model = _refine_temporal(model, P, counts, iterations=refine)
-    return _fit_growth(model, P, counts, x)
+    return dataclasses.replace(_fit_growth(model, P, counts, x), sign_known=sign_known)
 
 
 def _refine_temporal(model, P, counts, iterations=3):

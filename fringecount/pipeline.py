@@ -584,12 +584,20 @@ def _count_open(source: FrameSource, settings: CountSettings, progress, t_start)
     ambiguous = bool(gaps_out["ambiguous"].any()) if len(gaps_out) else False
     if not ambiguous and sigma > 1.0 / 6.0:
         ambiguous = True
+    notes = []
+    if not model.sign_known:
+        ambiguous = True
+        notes.append("the field is nearly uniform (or its phase turns back across the ROI): the size of the "
+                     "count is measured but its sign is not; check the direction with a known motion")
+        logger.warning(notes[-1])
     fps = float(source.fps)
     vis = frames_out.loc[frames_out["trusted"], "visibility"]
     summary = {
         "total_fringes": float(total),
         "total_fringes_sigma": float(sigma),
         "ambiguous": ambiguous,
+        "sign_determined": bool(model.sign_known),
+        "notes": notes,
         "frames": int(got),
         "fps": fps,
         "first_frame": int(frames[0]),
