@@ -86,6 +86,7 @@ class Case:
     bound: float | None = BOUND_FRINGES   # None: no error bound (ambiguous by design), z only
     ambiguous: bool | None = False        # expected summary["ambiguous"] (None: not checked)
     check_gaps: bool = True
+    seed: int = 7                         # noise/shake draw of the generator
 
 
 _PLATE_T_M, _DIODE_NM = 5e-3, 658.0
@@ -174,6 +175,11 @@ WORKING = {
 
 # ------------------------------------------------------------------ cases that fail today
 _FAILING = {
+    "two_rings_noise_draw_1": (Case(S.Scene(center_xy=C0), _mirror(d0_m=0.06e-3), n=100, seed=1),
+                               "~2 rings: the model choice flips with the noise draw (seeds 0-5: temporal, radial o1, "
+                               "radial o2); for draws 1 and 3 the radial fit follows the phase at a third of the true "
+                               "rate with the wrong sign, visibility dips every half fringe -> 10 low_visibility gaps, "
+                               "-4.67 +- 10.4 for +4.95 (draws 0, 2, 4, 5: error < 0.003)"),
     "half_ring": (Case(S.Scene(center_xy=C0), _mirror(d0_m=0.012e-3)),
                   "0.4 ring in the field: error -0.017 fringe (the on-axis growth of the pattern is fitted, "
                   "but with under half a ring the axis is extrapolated far)"),
@@ -266,7 +272,7 @@ def truth_untrusted(truth: pd.DataFrame, max_step_fringes: float) -> dict[str, n
 
 
 def run_case(name: str, case: Case, tmp_path):
-    frames, truth = S.render_clip(case.scene, case.camera, case.sweep, case.n, FPS, rng=7)
+    frames, truth = S.render_clip(case.scene, case.camera, case.sweep, case.n, FPS, rng=case.seed)
     path = _write(case, frames, tmp_path, name)
     kw = {"fps": FPS, **case.settings}
     if case.wavelength_log:
