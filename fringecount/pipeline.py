@@ -215,7 +215,11 @@ def _find_geometry(samples: np.ndarray, settings: CountSettings) -> Geometry:
     lb = line_bins((rows, cols), ref, direction, crop=settings.crop, outer_px=settings.outer_radius_px)
     straight_contrast = _explained(fimgs, lb)
     logger.debug("geometry: ring contrast %.3f, straight contrast %.3f", ring_contrast, straight_contrast)
-    if want == "straight" or (straight_contrast > ring_contrast + 0.05) or not ring:
+    far = bool(ring) and math.hypot(ring.x - (cols - 1) / 2, ring.y - (rows - 1) / 2) > 2 * math.hypot(rows, cols)
+    # rings centred far off the frame look straight; when straight fringes explain the pattern
+    # as well, the simpler description wins
+    if want == "straight" or (straight_contrast > ring_contrast + 0.05) or not ring \
+            or (far and straight_contrast >= 0.95 * ring_contrast):
         if straight_contrast < 0.02:
             raise NoFringesError("no fringes found: neither rings nor straight fringes stand out of the noise; "
                                  "check the clip (light, focus) or the --crop/--inner/--outer region")

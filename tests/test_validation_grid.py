@@ -171,6 +171,7 @@ WORKING = {
     "drift_1px_s_100_frames": Case(S.Scene(center_xy=C0, center_drift_px_s=(1.0, -0.5)), _mirror(), n=100),
     "dark_half_lit_edges": Case(S.Scene(center_xy=C0, dark_intervals_s=((0.8, 1.6),)), _mirror()),
     "one_ring": Case(S.Scene(center_xy=C0), _mirror(d0_m=0.03e-3)),
+    "straight_4_fringes_auto": Case(S.Scene(geometry="straight", carrier_cyc_px=(0.025, 0.0)), _mirror(), sign=-1),
 }
 
 # ------------------------------------------------------------------ cases that fail today
@@ -183,10 +184,6 @@ _FAILING = {
     "half_ring": (Case(S.Scene(center_xy=C0), _mirror(d0_m=0.012e-3)),
                   "0.4 ring in the field: error -0.017 fringe (the on-axis growth of the pattern is fitted, "
                   "but with under half a ring the axis is extrapolated far)"),
-    "straight_4_fringes_auto": (Case(S.Scene(geometry="straight", carrier_cyc_px=(0.025, 0.0)), _mirror(), sign=-1),
-                                "auto geometry takes 4 straight fringes for rings centred ~680 px off the frame "
-                                "(equal contrast, rings win ties); the ring fit then raises NoFringesError "
-                                "(counted to 1e-4 fringe with geometry='straight')"),
     "centre_outside_shake_0p4": (Case(S.Scene(center_xy=(190.0, 40.0), shake_px=0.4), _mirror(0.2e-3, 0.08)),
                                  "shake with the centre off the frame moves the arcs: per-frame phase jitter "
                                  "~0.1 fringe; end-frame error +0.057 (sigma 0.024); on longer clips a spurious "
