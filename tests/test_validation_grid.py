@@ -204,9 +204,10 @@ _FAILING = {
     "compensated_plate_near_zero": (Case(S.Scene(center_xy=C0),
                                          _mirror(_COMP_GAP_M + 0.01e-3, wavelength_m=_DIODE_NM * 1e-9,
                                                  plate_thickness_m=_PLATE_T_M, material="N-BK7")),
-                                    "plate compensated to 10 um (field nearly uniform, 4th-order plate term dominates): "
-                                    "the count has the wrong sign, -2.945 +- 0.087 for +2.950 (z = -68, not ambiguous; "
-                                    "before 7cb0663 a 'dark' gap every fringe)"),
+                                    "plate compensated to 10 um (4th-order plate term dominates, the radial phase turns "
+                                    "back): since e876fbc flagged sign_determined=false and ambiguous, but the size "
+                                    "is 2.974 for 2.950 (error 0.024 > 0.01, sigma 0.088); the on-axis sign is "
+                                    "physically defined (rings near the axis expand) yet reported negative"),
 }
 
 FAILING_EXC = (AssertionError, NoFringesError)
@@ -280,6 +281,11 @@ def run_case(name: str, case: Case, tmp_path):
 def check_against_truth(name: str, case: Case, result, truth, settings: dict) -> None:
     true_total = float(truth["fringes"].iloc[-1])
     error = case.sign * result.total_fringes - true_total
+    if result.summary.get("sign_determined") is False:
+        # documented contract: the size of the count is measured, its sign is not (summary note);
+        # then only the size is compared, and the result must say it is ambiguous
+        assert result.summary["ambiguous"], f"{name}: sign undetermined but not ambiguous"
+        error = abs(result.total_fringes) - abs(true_total)
     sigma = result.total_fringes_sigma
     assert sigma > 0 and math.isfinite(sigma)
     assert abs(error) < Z_MAX * sigma, f"{name}: error {error:+.4f}, sigma {sigma:.4f}, z {error / sigma:+.1f}"
