@@ -205,7 +205,11 @@ def _find_geometry(samples: np.ndarray, settings: CountSettings) -> Geometry:
             if want == "rings" or settings.center is not None or user_radii:
                 raise
             ring = None
-    if want == "rings" and ring:
+    if (want == "rings" or settings.center is not None) and ring:
+        # a centre given by the user means rings about it
+        if ring_contrast < 0.02:
+            raise NoFringesError(f"no ring pattern about the given centre ({ring.x:g}, {ring.y:g}); "
+                                 "check --center or leave it out to find the centre from the data")
         return Geometry("rings", ring, (0.0, 0.0), ring.xy, ring_contrast)
     direction, freq = _carrier_direction(fimgs)
     ref = ((cols - 1) / 2.0, (rows - 1) / 2.0)
@@ -274,6 +278,7 @@ class _ProfileStream:
         self.ok = np.zeros(n, bool)
 
     def add(self, k: int, img: np.ndarray, level: float | None) -> None:
+        img = np.asarray(img, dtype=np.float64)   # one cast per frame for all the bincounts
         for j, b in enumerate(self.bins):
             p, s = frame_profile(img, b, level)
             self.prof[j][k] = p
@@ -287,6 +292,8 @@ def _stream(source: FrameSource, bins_for_frame: Callable[[int], list[ProfileBin
             progress, block_len: int, block_samples: list | None):
     n = len(source)
     stream = None
+    n_blocks = max(1, int(math.ceil(n / block_len)))
+    per_block = max(1, min(3, int(math.ceil(24 / n_blocks))))  # about 24 centre samples in all
     frames = np.zeros(n, int)
     times = np.zeros(n)
     got = 0
@@ -308,7 +315,7 @@ def _stream(source: FrameSource, bins_for_frame: Callable[[int], list[ProfileBin
         times[k] = fr.time_s
         if block_samples is not None:
             pos = k % block_len
-            if pos % max(1, block_len // 3) == 0 and len(block_samples[blk]) < 3:
+            if pos % max(1, block_len // per_block) == 0 and len(block_samples[blk]) < per_block:
                 block_samples[blk].append((k, _as_float(img)))
         got += 1
         if progress is not None:
@@ -475,6 +482,7 @@ def _count_open(source: FrameSource, settings: CountSettings, progress, t_start)
     centers = np.tile(np.asarray(base, float), (got, 1))
     if track_drift:
         track, drift_info = _drift_track(block_samples, geom, settings, shape, n)
+        block_samples = None
         if track is not None:
             logger.info("ring centre drifts by up to %.2f px: second pass with a moving centre",
                         drift_info["max_drift_px"])
@@ -547,9 +555,11 @@ def _count_open(source: FrameSource, settings: CountSettings, progress, t_start)
             errs = tuple(math.hypot(a, b) for a, b in zip(drift_info["trend_sigma_px"],
                                                            drift_info["frame_scatter_px"]))
             errs = (max(errs[0], geom.center.x_err), max(errs[1], geom.center.y_err))
+        ends = _ends_fitter(segment, model)
+        nominal_ends = ends(profiles, nb0, model)
         for j, err in ((1, errs[0]), (2, errs[1])):
-            alt = fit_phases(stream.prof[j][:got].astype(float), stream.bins[j].coord, stream.bins[j].counts, model)
-            d = _endpoint_change(alt.phase, fits.phase, segment)
+            alt = ends(stream.prof[j][:got], stream.bins[j], model)
+            d = _endpoint_change(alt, nominal_ends, segment)
             sys_center += (d * (err / delta)) ** 2
         sys_center = math.sqrt(sys_center)
     sys_model = 0.0
@@ -566,8 +576,8 @@ def _count_open(source: FrameSource, settings: CountSettings, progress, t_start)
             sys_model = max(sys_model, abs(_endpoint_change(alt.phase, fits.phase, segment)))
     elif model.order > 1:
         lower = model.with_shape((model.shape[0], 0.0) if model.order == 3 else (0.0, 0.0), model.order - 1)
-        alt = fit_phases(profiles, nb0.coord, nb0.counts, lower)
-        sys_model = abs(_endpoint_change(alt.phase, fits.phase, segment))
+        ends = _ends_fitter(segment, model)
+        sys_model = abs(_endpoint_change(ends(profiles, nb0, lower), ends(profiles, nb0, model), segment))
     budget["center"] = sys_center
     budget["model"] = sys_model
     budget["cyclic"] = _cyclic_error(fr_seg, fits.phase, segment)
@@ -675,7 +685,7 @@ def _gap_json(row: dict) -> dict:
 def _cyclic_error(fringes: np.ndarray, phase: np.ndarray, segment: np.ndarray) -> float:
     """Sigma of the total from a once- or twice-per-fringe (cyclic) phase error, estimated from the data.
 
-    Within each trusted stretch that passes at least 1.5 fringes, the count minus its
+    Within each trusted stretch whose path runs over at least 1.5 fringes, the count minus its
     smooth trend (Savitzky-Golay over about two fringes) is regressed on cos/sin of
     the phase and of twice the phase. Motion noise is not locked to the phase and
     averages out; a cyclic error is. The total carries it at both end frames, so the
@@ -687,10 +697,10 @@ def _cyclic_error(fringes: np.ndarray, phase: np.ndarray, segment: np.ndarray) -
     for s in np.unique(segment[segment >= 0]):
         idx = np.flatnonzero(segment == s)
         f = fringes[idx]
-        span = float(np.nanmax(f) - np.nanmin(f))
-        if idx.size < 20 or span < 1.5:
+        path = float(np.nansum(np.abs(np.diff(f))))   # fringes passed, back and forth
+        if idx.size < 20 or path < 1.5:
             continue
-        per_fringe = idx.size / span
+        per_fringe = idx.size / path
         win = int(max(7, 2 * per_fringe)) | 1
         if win >= idx.size:
             continue
@@ -703,6 +713,24 @@ def _cyclic_error(fringes: np.ndarray, phase: np.ndarray, segment: np.ndarray) -
     A = np.column_stack([np.cos(p), np.sin(p), np.cos(2 * p), np.sin(2 * p)])
     coef = np.linalg.lstsq(A, r, rcond=None)[0]
     return float(math.sqrt(2.0) * math.sqrt(0.5 * float((coef ** 2).sum())))
+
+
+def _ends_fitter(segment: np.ndarray, model: RadialModel, half: int = 40):
+    """A function fitting phases only around the first and last trusted frames (all that the
+    systematic terms use); the few-fringe mode, whose growth term needs the whole clip, fits all."""
+    good = np.flatnonzero(segment >= 0)
+
+    def fit(P, bins: ProfileBins, mdl: RadialModel) -> np.ndarray:
+        P = np.asarray(P)
+        if model.mode != "radial" or good.size < 2 or P.shape[0] <= 4 * half:
+            return fit_phases(P.astype(float), bins.coord, bins.counts, mdl).phase
+        out = np.full(P.shape[0], np.nan)
+        for i in (good[0], good[-1]):
+            lo, hi = max(0, i - half), min(P.shape[0], i + half + 1)
+            out[lo:hi] = fit_phases(P[lo:hi].astype(float), bins.coord, bins.counts, mdl).phase
+        return out
+
+    return fit
 
 
 def _endpoint_change(alt_phase: np.ndarray, nom_phase: np.ndarray, segment: np.ndarray) -> float:
