@@ -35,6 +35,8 @@ __all__ = ["RadialModel", "estimate_model", "fit_phases", "PhaseFits"]
 logger = logging.getLogger(__name__)
 
 _N_BG = 4  # background polynomial terms (degree 3)
+#: Below this many fringes across the ROI the fringe patterns are learnt from the clip.
+FEW_FRINGES = 3.0
 
 
 @dataclass(frozen=True)
@@ -270,9 +272,16 @@ def estimate_model(profiles: np.ndarray, coord: np.ndarray, counts: np.ndarray, 
         candidates.append((order, shape, rss, float(np.median(kk))))
     fringes_in_roi = max((abs(c[3]) * float(np.ptp(x + c[1][0] * x * x + c[1][1] * x ** 3)) / (2 * np.pi)
                           for c in candidates), default=0.0)
-    if fringes_in_roi < 2.0:
+    if fringes_in_roi < FEW_FRINGES:
+        # a smooth background of degree 3 can imitate one or two fringe cycles, so with few fringes
+        # across the field the patterns are learnt from the clip instead (needs some motion)
         logger.debug("only %.2f fringes across the ROI: temporal (clip-pattern) mode", fringes_in_roi)
-        return temporal_model(P, x, counts, scale)
+        try:
+            return temporal_model(P, x, counts, scale)
+        except ValueError:
+            if not candidates:
+                raise
+            logger.debug("too little motion for clip patterns; radial model kept")
     if not candidates:
         raise ValueError("no fringe frequency found in the profiles")
     npts = float(Vs.sum())

@@ -538,7 +538,7 @@ def _count_open(source: FrameSource, settings: CountSettings, progress, t_start)
         raise NoFringesError(_no_trusted_message(table, settings))
     segment, gaps = find_gaps(table)
     fr_seg = unwrap_segments(fits.phase, segment)
-    sig_fr = fits.phase_sigma / (2 * np.pi)
+    sig_fr = np.maximum(fits.phase_sigma / (2 * np.pi), _empirical_phase_noise(fr_seg, segment))
     track = pd.DataFrame({"frame": frames, "time_s": times, "segment": segment,
                           "fringes": fr_seg, "fringes_sigma": sig_fr})
     bridged = bridge_gaps(track, gaps, wavelength_log=wlog, log_offset_s=settings.log_offset_s,
@@ -680,6 +680,29 @@ def _gap_json(row: dict) -> dict:
         out[k] = v
     out["description"] = describe(row.get("reason", ""))
     return out
+
+
+def _empirical_phase_noise(fringes: np.ndarray, segment: np.ndarray) -> float:
+    """Frame-to-frame scatter of the unwrapped count (fringes, 1 sigma) from its second differences.
+
+    The count minus a local cubic over 7 frames (Savitzky-Golay) keeps the noise and
+    drops smooth motion, accelerations included; for white noise of sigma s that
+    residual has the spread s sqrt(1 - 1/3) (the filter's central weight is 1/3).
+    The median absolute deviation keeps a few jumps from dominating. This floors the
+    least-squares phase sigma, which cannot see errors common to the whole frame
+    (shake moving arcs of rings, vibration).
+    """
+    from scipy.signal import savgol_filter
+
+    res = []
+    for s in np.unique(segment[segment >= 0]):
+        f = fringes[segment == s]
+        if f.size >= 9:
+            res.append(f - savgol_filter(f, 7, 3))
+    if not res:
+        return 0.0
+    r = np.concatenate(res)
+    return float(1.4826 * np.median(np.abs(r - np.median(r))) / math.sqrt(2.0 / 3.0))
 
 
 def _cyclic_error(fringes: np.ndarray, phase: np.ndarray, segment: np.ndarray) -> float:

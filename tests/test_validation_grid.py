@@ -172,26 +172,21 @@ WORKING = {
     "dark_half_lit_edges": Case(S.Scene(center_xy=C0, dark_intervals_s=((0.8, 1.6),)), _mirror()),
     "one_ring": Case(S.Scene(center_xy=C0), _mirror(d0_m=0.03e-3)),
     "straight_4_fringes_auto": Case(S.Scene(geometry="straight", carrier_cyc_px=(0.025, 0.0)), _mirror(), sign=-1),
+    "two_rings_noise_draw_1": Case(S.Scene(center_xy=C0), _mirror(d0_m=0.06e-3), n=100, seed=1),
 }
 
 # ------------------------------------------------------------------ cases that fail today
 _FAILING = {
-    "two_rings_noise_draw_1": (Case(S.Scene(center_xy=C0), _mirror(d0_m=0.06e-3), n=100, seed=1),
-                               "~2 rings: the model choice flips with the noise draw (seeds 0-5: temporal, radial o1, "
-                               "radial o2); for draws 1 and 3 the radial fit follows the phase at a third of the true "
-                               "rate with the wrong sign, visibility dips every half fringe -> 10 low_visibility gaps, "
-                               "-4.67 +- 10.4 for +4.95 (draws 0, 2, 4, 5: error < 0.003)"),
     "half_ring": (Case(S.Scene(center_xy=C0), _mirror(d0_m=0.012e-3)),
                   "0.4 ring in the field: error -0.017 fringe (the on-axis growth of the pattern is fitted, "
                   "but with under half a ring the axis is extrapolated far)"),
     "centre_outside_shake_0p4": (Case(S.Scene(center_xy=(190.0, 40.0), shake_px=0.4), _mirror(0.2e-3, 0.08)),
                                  "shake with the centre off the frame moves the arcs: per-frame phase jitter "
-                                 "~0.1 fringe; end-frame error +0.057 (sigma 0.024); on longer clips a spurious "
-                                 "one-frame too_fast gap gets the mode-hop prior (sigma 3.5, ambiguous)"),
+                                 "~0.1 fringe, now in the sigma (empirical floor), but spurious one-frame "
+                                 "too_fast gaps appear where the truth has none"),
     "shake_0p5px_centre_inside": (Case(S.Scene(center_xy=C0, shake_px=0.5), _mirror()),
-                                  "0.5 px rms shake, centre inside: the count is right (+0.003) but 6 one-to-three-"
-                                  "frame 'center_lost' gaps appear (truth: none) and one gets the mode-hop prior: "
-                                  "sigma 3.5, ambiguous"),
+                                  "0.5 px rms shake, centre inside: the count is right (+0.003, sigma 0.009, "
+                                  "not ambiguous) but 6 one-to-three-frame 'center_lost' gaps appear (truth: none)"),
     "centre_far_outside": (Case(S.Scene(center_xy=(300.0, 60.0)), _mirror()),
                            "centre 140 px beyond the right edge (arcs of ~10 rings): 2.45 +- 0.59 for 2.95, "
                            "ambiguous; model term 0.53 and centre term 0.26 dominate"),
