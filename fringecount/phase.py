@@ -92,19 +92,6 @@ def _design_bg(x: np.ndarray) -> np.ndarray:
     return legendre.legvander(t, _N_BG - 1)
 
 
-def _initial_kappa(q: np.ndarray, x: np.ndarray) -> float:
-    """Ring frequency (rad per unit x) from the FFT peak of a background-free profile."""
-    n = q.size
-    grid = np.linspace(x.min(), x.max(), n)
-    qi = np.interp(grid, x, q) * np.hanning(n)
-    pad = 8 * n
-    spec = np.abs(np.fft.rfft(qi, pad))
-    freqs = np.fft.rfftfreq(pad, d=(grid[1] - grid[0]))
-    spec[freqs < 1.0 / (x.max() - x.min())] = 0  # less than one fringe over the ROI: ignore
-    k = int(np.argmax(spec))
-    return float(2 * np.pi * freqs[k])
-
-
 def _fit_chunk(P, valid, x, h, kappa, env, w, bg, *, newton: bool):
     """Weighted LS of one chunk of profiles. Returns coefficient arrays and covariances."""
     m, nb = P.shape

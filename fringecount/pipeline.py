@@ -211,7 +211,7 @@ def _find_geometry(samples: np.ndarray, settings: CountSettings) -> Geometry:
             raise NoFringesError(f"no ring pattern about the given centre ({ring.x:g}, {ring.y:g}); "
                                  "check --center or leave it out to find the centre from the data")
         return Geometry("rings", ring, (0.0, 0.0), ring.xy, ring_contrast)
-    direction, freq = _carrier_direction(fimgs)
+    direction, _ = _carrier_direction(fimgs)
     ref = ((cols - 1) / 2.0, (rows - 1) / 2.0)
     if settings.crop is not None:
         x0, y0, x1, y1 = settings.crop
@@ -507,8 +507,7 @@ def _count_open(source: FrameSource, settings: CountSettings, progress, t_start)
         raise NoFringesError("fewer than 4 frames have a usable profile (too dark or saturated); "
                              "check exposure, --saturation and the ROI")
     try:
-        model = estimate_model(profiles, nb0.coord, nb0.counts,
-                               sample=None if usable.all() else None)
+        model = estimate_model(profiles, nb0.coord, nb0.counts)
     except ValueError:
         raise NoFringesError("no fringe frequency found in the region of interest; "
                              "check the clip or tune the ROI with 'fringecount roi'") from None
