@@ -14,6 +14,17 @@ from .errors import ResultExistsError
 __all__ = ["write_bytes_atomic", "write_text_atomic", "staged_directory"]
 
 
+def _umask() -> int:
+    mask = os.umask(0)
+    os.umask(mask)
+    return mask
+
+
+def _ordinary_mode(path: Path, *, directory: bool) -> None:
+    """Give a temporary file/folder the mode a plain open()/mkdir() would (mkstemp/mkdtemp use 0600/0700)."""
+    os.chmod(path, (0o777 if directory else 0o666) & ~_umask())
+
+
 def write_bytes_atomic(path: str | os.PathLike, data: bytes) -> Path:
     """Write ``data`` to ``path`` through a temporary file in the same folder, then rename."""
     path = Path(path)
@@ -24,6 +35,7 @@ def write_bytes_atomic(path: str | os.PathLike, data: bytes) -> Path:
             fh.write(data)
             fh.flush()
             os.fsync(fh.fileno())
+        _ordinary_mode(Path(tmp), directory=False)
         os.replace(tmp, path)
     except BaseException:
         if os.path.exists(tmp):
@@ -56,6 +68,7 @@ def staged_directory(out_dir: str | os.PathLike, *, force: bool = False,
             f"{out_dir} already holds a result; pass --force to replace it or choose another --out")
     out_dir.parent.mkdir(parents=True, exist_ok=True)
     stage = Path(tempfile.mkdtemp(prefix=f".{out_dir.name}.", suffix=".part", dir=out_dir.parent))
+    _ordinary_mode(stage, directory=True)
     try:
         yield stage
         if out_dir.exists():
