@@ -191,6 +191,9 @@ def parse_quantity(text: str | float | int, kind: str, *, name: str = "value") -
         value_unit = sigma_unit
     elif value_unit and not sigma_unit:  # 1.000mm+/-0.002: the sigma takes the value's unit
         sigma_unit = value_unit
+    if not value_unit and kind == "co2":
+        # a CO2 content is quoted as a bare mole fraction in umol/mol (ppm) by common practice
+        value_unit = sigma_unit = "ppm"
     if not value_unit:
         raise UnitError(f"{name}: {text.strip()!r} has no unit; write e.g. {example}")
     vu = _check_unit(_unit(value_unit, name, kind, example), kind, name)

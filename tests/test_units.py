@@ -26,6 +26,7 @@ from fringecount.units import Uncertain, convert_value, parse_number, parse_quan
     ("10K", "temperature_difference", 10.0, 0.0),
     ("450ppm", "co2", 450.0, 0.0),
     ("450umol/mol", "co2", 450.0, 0.0),
+    ("450", "co2", 450.0, 0.0),  # a bare CO2 content is in ppm (common practice)
     ("450µmol/mol", "co2", 450.0, 0.0),
     ("1.000+/-0.002mm", "length", 1e-3, 2e-6),
     ("1.000mm+/-0.002mm", "length", 1e-3, 2e-6),
