@@ -11,7 +11,7 @@ import argparse
 from ..errors import SettingsError
 from ..settings import CHANNELS, GEOMETRIES, CountSettings
 
-__all__ = ["add_clip_arguments", "add_roi_arguments", "settings_from_args"]
+__all__ = ["add_clip_arguments", "add_roi_arguments", "add_gap_arguments", "settings_from_args"]
 
 
 def _numbers(text: str, n: int, what: str, example: str, cast=float) -> tuple:
@@ -68,6 +68,22 @@ def add_roi_arguments(parser: argparse.ArgumentParser) -> None:
                    help="keep one centre for the whole clip instead of following a drift")
 
 
+def add_gap_arguments(parser: argparse.ArgumentParser) -> None:
+    """Options for untrusted intervals and their bridging (``count`` and ``batch``)."""
+    g = parser.add_argument_group("gaps and bridging")
+    g.add_argument("--wavelengths", metavar="LOG.csv", default=None,
+                   help="wavemeter log (columns time_s, wavelength_nm; vacuum) to bridge mode hops")
+    g.add_argument("--log-offset", metavar="SECONDS", type=float, default=0.0,
+                   help="added to the log's times to put them on the clip's clock")
+    g.add_argument("--air-wavelengths", action="store_true", help="the log holds air wavelengths")
+    g.add_argument("--hop-range", metavar="FRINGES", type=float, default=6.0,
+                   help="without a log: largest whole-fringe jump a mode hop may hide (default 6)")
+    g.add_argument("--min-visibility", type=float, default=None,
+                   help="visibility below which a frame is not trusted (default: from the clip)")
+    g.add_argument("--max-step", metavar="FRINGES", type=float, default=0.35,
+                   help="largest frame-to-frame step followed, in fringes (default 0.35; 0.5 is the aliasing limit)")
+
+
 def settings_from_args(args: argparse.Namespace, **more) -> CountSettings:
     """Build :class:`CountSettings` from parsed clip and ROI options (plus ``more``)."""
     kw: dict = {}
@@ -85,5 +101,11 @@ def settings_from_args(args: argparse.Namespace, **more) -> CountSettings:
     kw["saturation_level"] = getattr(args, "saturation", None)
     kw["geometry"] = getattr(args, "geometry", "auto")
     kw["track_center"] = not getattr(args, "fixed_center", False)
+    gap_options = {"wavelengths": "wavelength_log", "log_offset": "log_offset_s",
+                   "air_wavelengths": "log_air_wavelengths", "hop_range": "hop_range_fringes",
+                   "min_visibility": "min_visibility", "max_step": "max_step_fringes"}
+    for option, field_name in gap_options.items():
+        if hasattr(args, option):
+            kw[field_name] = getattr(args, option)
     kw.update(more)
     return CountSettings(**kw)

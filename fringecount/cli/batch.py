@@ -24,7 +24,7 @@ import pandas as pd
 
 from ..batch import run_batch
 from ..errors import InputError
-from ._options import add_clip_arguments, add_roi_arguments, settings_from_args
+from ._options import add_clip_arguments, add_gap_arguments, add_roi_arguments, settings_from_args
 
 __all__ = ["register", "run"]
 
@@ -60,6 +60,7 @@ def register(subparsers) -> None:
                         help="stop a clip's analysis after this many seconds (local runs; an error row)")
     add_clip_arguments(parser)
     add_roi_arguments(parser)
+    add_gap_arguments(parser)
     add_output_arguments(parser)
     parser.set_defaults(func=run)
 

@@ -16,7 +16,7 @@ import argparse
 import sys
 
 from . import add_output_arguments
-from ._options import add_clip_arguments, add_roi_arguments, settings_from_args
+from ._options import add_clip_arguments, add_gap_arguments, add_roi_arguments, settings_from_args
 
 __all__ = ["register", "run"]
 
@@ -28,18 +28,7 @@ def register(sub) -> None:
     p.add_argument("clip", help="video, TIFF stack, .npy array or folder of numbered images")
     add_clip_arguments(p)
     add_roi_arguments(p)
-    g = p.add_argument_group("gaps and bridging")
-    g.add_argument("--wavelengths", metavar="LOG.csv", default=None,
-                   help="wavemeter log (columns time_s, wavelength_nm; vacuum) to bridge mode hops")
-    g.add_argument("--log-offset", metavar="SECONDS", type=float, default=0.0,
-                   help="added to the log's times to put them on the clip's clock")
-    g.add_argument("--air-wavelengths", action="store_true", help="the log holds air wavelengths")
-    g.add_argument("--hop-range", metavar="FRINGES", type=float, default=6.0,
-                   help="without a log: largest whole-fringe jump a mode hop may hide (default 6)")
-    g.add_argument("--min-visibility", type=float, default=None,
-                   help="visibility below which a frame is not trusted (default: from the clip)")
-    g.add_argument("--max-step", metavar="FRINGES", type=float, default=0.35,
-                   help="largest frame-to-frame step followed, in fringes (default 0.35; 0.5 is the aliasing limit)")
+    add_gap_arguments(p)
     o = p.add_argument_group("output")
     o.add_argument("--out", metavar="DIR", default=None,
                    help="write DIR/frames.csv, DIR/gaps.csv, DIR/summary.json (atomically)")
@@ -95,10 +84,7 @@ def run(args: argparse.Namespace) -> int:
         if (Path(args.out) / "summary.json").exists():
             from ..errors import ResultExistsError
             raise ResultExistsError(f"{args.out} already holds a result; pass --force to replace it or choose another --out")
-    settings = settings_from_args(
-        args, wavelength_log=args.wavelengths, log_offset_s=args.log_offset,
-        log_air_wavelengths=args.air_wavelengths, hop_range_fringes=args.hop_range,
-        min_visibility=args.min_visibility, max_step_fringes=args.max_step)
+    settings = settings_from_args(args)
     bar = None
     progress = None
     if not args.quiet:
